@@ -1,0 +1,84 @@
+"""Options and steps shared by every subcommand: event settings, stroke input, time windows."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from ..config import EventConfig, load_event_config, with_overrides
+from ..errors import InputError
+from ..timeutil import parse_user_time
+
+
+def parse_columns(text: str | None) -> dict[str, str] | None:
+    """``"time=UTC,latitude=Lat"`` -> ``{"time": "UTC", "latitude": "Lat"}``."""
+    if not text:
+        return None
+    out = {}
+    for part in text.split(","):
+        canon, sep, header = part.partition("=")
+        if not sep or not canon.strip() or not header.strip():
+            raise InputError(f"--columns: expected NAME=HEADER pairs separated by commas, got {part!r}")
+        out[canon.strip()] = header.strip()
+    return out
+
+
+def add_event_options(p: argparse.ArgumentParser) -> None:
+    """``--event`` and ``--tz``: every command takes them."""
+    p.add_argument("--event", metavar="EVENT_DIR", help="event folder whose event.toml supplies settings")
+    p.add_argument("--tz", metavar="ZONE", help="IANA time zone for typed times without offset and for display")
+
+
+def add_stroke_options(p: argparse.ArgumentParser, *, positional: bool = True) -> None:
+    """The stroke file and the reader options of DESIGN.md."""
+    if positional:
+        p.add_argument("strokes", metavar="STROKES", help="stroke file (.csv or .parquet)")
+    add_event_options(p)
+    p.add_argument("--columns", metavar="MAP", help="explicit column map, e.g. time=UTC,latitude=Lat")
+    p.add_argument("--current-unit", choices=("kA", "A"), help="unit of the peak current column (default kA)")
+    p.add_argument("--ellipse-confidence", type=float, metavar="P", help="confidence level of the ellipses (default 0.5)")
+    p.add_argument("--strict", action="store_true", help="any rejected row is fatal")
+
+
+def config_from_args(args) -> EventConfig:
+    """event.toml of ``--event`` (or all defaults), with command-line options applied on top."""
+    cfg = load_event_config(getattr(args, "event", None))
+    overrides = {
+        "time_zone": getattr(args, "tz", None),
+        "current_unit": getattr(args, "current_unit", None),
+        "ellipse_confidence": getattr(args, "ellipse_confidence", None),
+    }
+    cols = parse_columns(getattr(args, "columns", None))
+    if cols:
+        merged = dict(cfg.get("columns"))
+        merged.update(cols)
+        overrides["columns"] = merged
+    return with_overrides(cfg, overrides)
+
+
+def load_strokes(path, cfg: EventConfig, *, strict: bool = False):
+    """Read a stroke file with the event's reader options; report rejected rows on stderr.
+
+    Returns
+    -------
+    (strokes, ledger) as :func:`debrief.io.strokes.read_strokes` gives them.
+    """
+    from ..io.strokes import read_strokes
+
+    strokes, ledger = read_strokes(Path(path), config=cfg, strict=strict)
+    if ledger.rows_rejected or ledger.duplicates_dropped:
+        print(f"debrief: {ledger.one_line()}", file=sys.stderr)
+    return strokes, ledger
+
+
+def window_from_args(args, cfg: EventConfig):
+    """(start, end) as UTC Timestamps from ``--start/--end`` or event.toml; None where unset."""
+    tz = cfg.time_zone
+    start_text = getattr(args, "start", None) or cfg.get("start")
+    end_text = getattr(args, "end", None) or cfg.get("end")
+    start = parse_user_time(start_text, tz, what="start") if start_text else None
+    end = parse_user_time(end_text, tz, what="end") if end_text else None
+    if start is not None and end is not None and end <= start:
+        raise InputError(f"end ({end_text}) is not after start ({start_text})")
+    return start, end

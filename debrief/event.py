@@ -1,0 +1,101 @@
+"""An event folder loaded once: settings, strokes grouped into flashes, flags, and the ledger.
+
+The CLI's ``summary`` and ``report`` commands, the report templates and the widgets all start
+from :func:`load_event`, so every view of an event sees the same numbers.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from .config import EventConfig, load_event_config, with_overrides
+from .errors import InputError
+from .timeutil import parse_user_time
+
+
+@dataclass
+class Event:
+    """Everything known about one event.
+
+    Attributes
+    ----------
+    config : EventConfig
+    strokes : DataFrame
+        The whole stroke file, grouped (stroke table plus flash columns).
+    flashes : DataFrame
+        The whole file's flashes with continuing-current flags.
+    ledger : Ledger
+        The stroke reader's ledger.
+    start, end : Timestamp
+        The analysis window (UTC): event.toml's ``start``/``end`` or the data's extent.
+    inputs : list of dict
+        ``{"role", "path", "sha256", "rows"}`` for every input file read.
+    """
+
+    config: EventConfig
+    strokes: pd.DataFrame
+    flashes: pd.DataFrame
+    ledger: object
+    start: pd.Timestamp
+    end: pd.Timestamp
+    inputs: list = field(default_factory=list)
+    extras: dict = field(default_factory=dict)
+
+    @property
+    def name(self) -> str:
+        return self.config.name
+
+    def window(self, start=None, end=None):
+        """(strokes, flashes) of flashes whose first stroke is in [start, end] (default: the event window)."""
+        from .flashes import select_window
+
+        return select_window(self.strokes, self.flashes, start or self.start, end or self.end)
+
+
+def sha256_of(path: Path) -> str:
+    """SHA-256 hex digest of a file, read in 1 MiB blocks."""
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False, config: EventConfig | None = None) -> Event:
+    """Load an event folder: read strokes, group flashes, flag continuing-current suspects.
+
+    Parameters
+    ----------
+    event_dir : path
+        Folder with event.toml and the stroke file.
+    overrides : dict, optional
+        ``{"section.key": value}`` settings that replace event.toml's.
+    strict : bool
+        Any rejected stroke row is fatal.
+    config : EventConfig, optional
+        Already-loaded settings (then `event_dir` and `overrides` are not read again).
+    """
+    from .continuing_current import flag_continuing_current
+    from .flashes import group_flashes
+    from .io.strokes import read_strokes
+
+    cfg = config if config is not None else with_overrides(load_event_config(event_dir), overrides or {})
+    path = cfg.path("strokes")
+    if not path.exists():
+        raise InputError(f"event {cfg.name!r}: stroke file not found: {path}")
+    strokes, ledger = read_strokes(path, config=cfg, strict=strict)
+    if len(strokes) == 0:
+        raise InputError(f"event {cfg.name!r}: no usable strokes in {path}")
+    grouped, flashes = group_flashes(strokes, cfg)
+    flashes = flag_continuing_current(grouped, flashes, cfg)
+    tz = cfg.time_zone
+    start = parse_user_time(cfg.get("start"), tz, what="event.toml start") if cfg.get("start") else grouped["time"].min()
+    end = parse_user_time(cfg.get("end"), tz, what="event.toml end") if cfg.get("end") else grouped["time"].max()
+    if end < start:
+        raise InputError(f"event {cfg.name!r}: end ({end}) is before start ({start})")
+    inputs = [{"role": "strokes", "path": str(path), "sha256": sha256_of(path), "rows": int(ledger.rows_read)}]
+    return Event(config=cfg, strokes=grouped, flashes=flashes, ledger=ledger, start=start, end=end, inputs=inputs)

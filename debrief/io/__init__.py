@@ -1,0 +1,1 @@
+"""Readers: files in, canonical tables and a ledger out. No analysis here."""
