@@ -226,6 +226,8 @@ def _check(section: str, key: str, value, where: str):
 
 
 def _type_word(spec: Key) -> str:
+    if int in spec.types and float not in spec.types:
+        return "whole number"
     names = {int: "number", float: "number", str: "string", bool: "true/false", dict: "table", type(None): None}
     words = sorted({names[t] for t in spec.types if names[t]})
     return " or ".join(words)
@@ -319,3 +321,11 @@ def markdown_table() -> str:
             d = "none" if spec.default is None else ("{}" if spec.default == {} else repr(spec.default))
             rows.append(f"| {('[' + s + ']') if s else 'top level'} | `{k}` | {d} | {spec.doc} |")
     return "\n".join(rows) + "\n"
+
+
+if __name__ == "__main__":  # python -m debrief.config > docs/event-toml.md
+    print("# event.toml\n")
+    print("Every key of an event folder's `event.toml`, its default and its meaning. Generated from")
+    print("`debrief/config.py` (`python -m debrief.config > docs/event-toml.md`); a test keeps it current.")
+    print("Command-line options override the file. An unknown key is an error naming the key and line.\n")
+    print(markdown_table(), end="")
