@@ -1,0 +1,226 @@
+"""``debrief summary EVENT_DIR``: the text debrief of an event's strokes and flashes.
+
+Everything printed comes from the core functions (``debrief.polarity``,
+``debrief.continuing_current``) on the event loaded by :func:`debrief.event.load_event`, so the
+numbers are the report's and the widgets' numbers.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+
+import numpy as np
+
+from .. import continuing_current as cc
+from .. import polarity as pol
+from ..errors import InputError
+from ..timeutil import format_times, iso_utc, parse_user_time
+
+GENERAL_CAUTIONS = (
+    "This summary is a record of what a lightning location network reported, not a warning "
+    "and not a safety clearance.",
+    "Networks miss some strokes and flashes (detection efficiency below 100%) and locate each "
+    "stroke only within its error ellipse; counts, multiplicities and intervals carry both.",
+    "Multiplicities from network data run below those seen on video because subsequent strokes "
+    "are missed more often than first strokes.",
+    "Conclusions about damage, outages or safety need qualified people and defer to local codes "
+    "and licensed practice.",
+)
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "summary", help="the text debrief of an event: counts, polarity, multiplicity, currents, flags",
+        description="Summarise an event folder: data ledger, stroke and flash counts, positive "
+                    "share, multiplicity, interstroke intervals, peak-current medians and their "
+                    "distance from the IEEE reference, and continuing-current suspects.",
+        epilog="Times typed without an offset are read in --tz or the event's time_zone.")
+    p.add_argument("event_dir", metavar="EVENT_DIR", help="event folder (event.toml, strokes.csv)")
+    p.add_argument("--start", metavar="ISO", help="window start (default: event.toml start or first stroke)")
+    p.add_argument("--end", metavar="ISO", help="window end (default: event.toml end or last stroke)")
+    p.add_argument("--tz", metavar="ZONE", help="IANA zone for display and for typed times without offset")
+    p.add_argument("--top", type=int, default=10, metavar="N", help="list at most N continuing-current suspects (default 10)")
+    p.add_argument("--json", action="store_true", help="print the numbers as JSON instead of text")
+    p.add_argument("--strict", action="store_true", help="any rejected stroke row is fatal")
+    p.set_defaults(func=run)
+
+
+def summarise(event, start=None, end=None, top: int = 10) -> dict:
+    """Every number of the summary, as a JSON-ready dict (NaN as None).
+
+    Parameters
+    ----------
+    event : debrief.event.Event
+    start, end : Timestamp, optional
+        Window on first-stroke times (default: the event's window).
+    top : int
+        How many continuing-current suspects to list (largest peak current first).
+    """
+    if top < 0:
+        raise InputError("--top must be 0 or more")
+    start = event.start if start is None else start
+    end = event.end if end is None else end
+    if end < start:
+        raise InputError(f"end ({iso_utc(end)}) is before start ({iso_utc(start)})")
+    cfg = event.config
+    strokes, flashes = event.window(start, end)
+    is_cg_s = (strokes["type"] == "CG").to_numpy()
+    is_cg_f = (flashes["type"] == "CG").to_numpy()
+    share = pol.positive_share(flashes)
+    mult = pol.multiplicity_table(flashes)
+    means = pol.mean_multiplicity(flashes)
+    inter = pol.interstroke_summary(flashes)
+    med = pol.first_subsequent_medians(strokes)
+    ref = pol.compare_reference(strokes, config=cfg)
+    rules = cc.rules_from(cfg)
+    gaps = cc.suspect_gaps(strokes, flashes, cfg)
+    sus = flashes[flashes["cc_suspect"].to_numpy(dtype=bool)]
+    # the longest suspicious gap of each flash, with the weak stroke's current before it
+    longest = gaps.sort_values(["flash_id", "interval_ms"]).groupby("flash_id").tail(1).set_index("flash_id")
+    top_rows = sus.sort_values(["max_abs_peak_ka", "flash_id"], ascending=[False, True]).head(top)
+    by_reason = {code: int(sus["cc_reasons"].str.split(";").apply(lambda c, k=code: k in c).sum()) for code in cc.REASONS}
+    de = cfg.get("flash_detection_efficiency")
+    de_src = cfg.get("flash_detection_efficiency_source")
+    semi = strokes["semi_major_km"].to_numpy(dtype=float) if "semi_major_km" in strokes else np.zeros(0)
+    semi = semi[~np.isnan(semi)]
+    out = {
+        "event": event.name,
+        "window": {"start": iso_utc(start), "end": iso_utc(end), "time_zone": cfg.time_zone,
+                   "start_text": format_times(start, cfg.time_zone), "end_text": format_times(end, cfg.time_zone)},
+        "ledger": event.ledger.to_dict(),
+        "ledger_line": event.ledger.one_line(),
+        "counts": {
+            "strokes": int(len(strokes)), "ground_strokes": int(is_cg_s.sum()), "cloud_pulses": int((~is_cg_s).sum()),
+            "flashes": int(len(flashes)), "ground_flashes": int(is_cg_f.sum()), "cloud_flashes": int((~is_cg_f).sum()),
+        },
+        "polarity": share,
+        "multiplicity": {"table": mult.reset_index().to_dict(orient="records"),
+                         "mean": means.reset_index(names="polarity").to_dict(orient="records")},
+        "interstroke": inter.reset_index(names="polarity").to_dict(orient="records"),
+        "medians": med.reset_index(names="polarity").to_dict(orient="records"),
+        "reference": ref.reset_index(names="kind").to_dict(orient="records"),
+        "continuing_current": {
+            "rules": rules, "suspects": int(len(sus)), "by_reason": by_reason,
+            "reasons": {k: dict(v) for k, v in cc.REASONS.items()},
+            "top": [{
+                "flash_id": int(r.flash_id), "time": iso_utc(r.time), "time_text": format_times(r.time, cfg.time_zone),
+                "polarity": str(r.polarity), "multiplicity": int(r.multiplicity),
+                "max_abs_peak_ka": float(r.max_abs_peak_ka), "cc_reasons": str(r.cc_reasons),
+                "longest_gap_ms": float(longest["interval_ms"].get(r.flash_id, np.nan)),
+                "gap_after_ka": float(longest["peak_current_ka"].get(r.flash_id, np.nan)),
+            } for r in top_rows.itertuples(index=False)],
+        },
+        "network": {"flash_detection_efficiency": de, "flash_detection_efficiency_source": de_src,
+                    "median_semi_major_km": float(np.median(semi)) if len(semi) else None,
+                    "ellipse_confidence": cfg.get("ellipse_confidence")},
+        "cautions": list(GENERAL_CAUTIONS) + list(cc.CAUTIONS),
+    }
+    return _clean(out)
+
+
+def _clean(v):
+    """JSON-ready: numpy scalars to Python, NaN/inf to None."""
+    if isinstance(v, dict):
+        return {str(k): _clean(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_clean(x) for x in v]
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, (float, np.floating)):
+        f = float(v)
+        return f if math.isfinite(f) else None
+    if isinstance(v, np.bool_):
+        return bool(v)
+    return v
+
+
+def _num(v, fmt="{:.1f}", none="n/a"):
+    return none if v is None else fmt.format(v)
+
+
+def _pct(v):
+    return "n/a" if v is None else f"{100.0 * v:.1f}%"
+
+
+def render_text(s: dict) -> str:
+    """The summary dict as plain text (what ``debrief summary`` prints)."""
+    c = s["counts"]
+    p = s["polarity"]
+    lines = [
+        s["event"],
+        f"Window (first-stroke times): {s['window']['start_text']} to {s['window']['end_text']}",
+        f"Data: {s['ledger_line']}",
+        "",
+        f"Strokes: {c['strokes']:,} ({c['ground_strokes']:,} ground strokes, {c['cloud_pulses']:,} cloud pulses)",
+        f"Flashes: {c['flashes']:,} ({c['ground_flashes']:,} ground, {c['cloud_flashes']:,} cloud)"
+        + ("; no flash starts in this window" if c["flashes"] == 0 else ""),
+        f"Positive share of ground flashes: {_pct(p['share'])} ({p['positive']:,} positive, {p['negative']:,} negative; "
+        f"{p['likely_ic_left_out']:,} likely cloud pulses left out)",
+        "",
+        "Multiplicity (ground flashes, strokes per flash):",
+        f"  {'strokes':>7}  {'negative':>15}  {'positive':>15}  {'all':>15}",
+    ]
+    for r in s["multiplicity"]["table"]:
+        cells = [f"{r[f'{k}_count']:>6,} ({r[f'{k}_percent']:5.1f}%)" for k in ("negative", "positive", "all")]
+        lines.append(f"  {r['multiplicity']:>7}  " + "  ".join(f"{x:>15}" for x in cells))
+    for r in s["multiplicity"]["mean"]:
+        lines.append(f"  {r['polarity']}: mean multiplicity {_num(r['mean_multiplicity'], '{:.2f}')}, "
+                     f"single-stroke {_pct(r['single_stroke_share'])} of {r['flashes']:,} flashes")
+    lines += ["", "Interstroke intervals (ground flashes):"]
+    for r in s["interstroke"]:
+        lines.append(f"  {r['polarity']}: {r['intervals']:,} intervals in {r['flashes']:,} flashes, "
+                     f"geometric mean {_num(r['geometric_mean_ms'])} ms, median {_num(r['median_ms'])} ms"
+                     + (f" ({r['zero_intervals']:,} zero intervals left out of the geometric mean)"
+                        if r["zero_intervals"] else ""))
+    lines += ["", "Peak current |Ip| medians (ground strokes):"]
+    for r in s["medians"]:
+        lines.append(f"  {r['polarity']}: first {_num(r['first_median_ka'])} kA ({r['first_count']:,} strokes), "
+                     f"subsequent {_num(r['subsequent_median_ka'])} kA ({r['subsequent_count']:,} strokes)")
+    lines += ["", "Negative strokes beside the IEEE Std 1410 distributions (Kolmogorov-Smirnov distance, not a p-value):"]
+    for r in s["reference"]:
+        lines.append(f"  {r['kind']}: {r['strokes']:,} strokes at or above {r['floor_ka']:g} kA "
+                     f"({r['below_floor']:,} below left out), median {_num(r['median_ka'])} kA vs reference "
+                     f"{_num(r['reference_median_ka'])} kA, KS distance {_num(r['ks_distance'], '{:.3f}')} "
+                     f"at {_num(r['at_ka'])} kA")
+    k = s["continuing_current"]
+    rules = k["rules"]
+    lines += ["", f"Continuing-current suspects: {k['suspects']:,} flashes "
+                  f"(rules: single positive >= {rules['positive_min_ka']:g} kA; gap >= {rules['min_interval_ms']:g} ms "
+                  f"after a negative stroke below {rules['negative_max_abs_ka']:g} kA, same contact)"]
+    for code, n in k["by_reason"].items():
+        lines.append(f"  {code}: {n:,} - {k['reasons'][code]['explanation']} ({k['reasons'][code]['source']})")
+    if k["top"]:
+        lines.append(f"  Largest {len(k['top'])} by peak current:")
+        for r in k["top"]:
+            gap = (f", gap {r['longest_gap_ms']:.1f} ms after a {r['gap_after_ka']:.1f} kA stroke"
+                   if r["longest_gap_ms"] is not None else "")
+            lines.append(f"    flash {r['flash_id']}  {r['time_text']}  {r['polarity']}  {r['multiplicity']} stroke(s)  "
+                         f"max |Ip| {r['max_abs_peak_ka']:.1f} kA{gap}  [{r['cc_reasons']}]")
+    n = s["network"]
+    de = ("not given in event.toml" if n["flash_detection_efficiency"] is None else
+          f"{_pct(n['flash_detection_efficiency'])} ({n['flash_detection_efficiency_source'] or 'source not given'})")
+    lines += ["", f"Network: flash detection efficiency {de}; median error-ellipse semi-major axis "
+                  f"{_num(n['median_semi_major_km'], '{:.2f}')} km at {_pct(n['ellipse_confidence'])} confidence",
+              "", "Cautions:"]
+    lines += [f"  - {t}" for t in s["cautions"]]
+    return "\n".join(lines) + "\n"
+
+
+def run(args) -> int:
+    from ..event import load_event
+
+    overrides = {"time_zone": args.tz} if args.tz else None
+    event = load_event(args.event_dir, overrides=overrides, strict=args.strict)
+    if event.ledger.rows_rejected or event.ledger.duplicates_dropped:
+        print(f"debrief: {event.ledger.one_line()}", file=sys.stderr)
+    tz = event.config.time_zone
+    start = parse_user_time(args.start, tz, what="--start") if args.start else None
+    end = parse_user_time(args.end, tz, what="--end") if args.end else None
+    s = summarise(event, start, end, top=args.top)
+    if args.json:
+        print(json.dumps(s, indent=2))
+    else:
+        print(render_text(s), end="")
+    return 0
