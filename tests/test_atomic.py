@@ -27,3 +27,13 @@ def test_failure_leaves_nothing(tmp_path):
 def test_missing_folder(tmp_path):
     with pytest.raises(InputError, match="output folder does not exist"):
         write_text_atomic(tmp_path / "nope" / "out.txt", "x")
+
+
+def test_result_has_ordinary_permissions(tmp_path):
+    import os
+    import stat
+
+    write_text_atomic(tmp_path / "a.txt", "x")
+    plain = tmp_path / "b.txt"
+    plain.write_text("x")
+    assert stat.S_IMODE(os.stat(tmp_path / "a.txt").st_mode) == stat.S_IMODE(os.stat(plain).st_mode)

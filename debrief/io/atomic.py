@@ -24,11 +24,19 @@ def atomic_path(path: str | os.PathLike):
     os.close(fd)
     try:
         yield Path(tmp)
+        # mkstemp creates 0600; give the result the permissions an ordinary open() would.
+        os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, target)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
             os.unlink(tmp)
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def write_text_atomic(path, text: str) -> None:
