@@ -99,6 +99,9 @@ _SCHEMA: dict[str, dict[str, Key]] = {
         "default_height_m": Key(None, _OPT_NUM, "conductor height for lines that give none", 0.0, None, True),
         "default_cfo_kv": Key(None, _OPT_NUM, "critical flashover voltage for lines that give none", 0.0, None, True),
         "striking_distance_model": Key("ieee1410", _STR, "direct-strike model", choices=("ieee1410", "ieee1243", "eriksson")),
+        "likely_p": Key(0.5, _NUM, "probability at or above which a mechanism (direct strike, induced flashover) is called likely", 0.0, 1.0, True),
+        "possible_p": Key(0.1, _NUM, "probability of a flashover-capable stroke at or above which lightning is called a possible cause", 0.0, 1.0, True),
+        "include_ic": Key(False, (bool,), "cloud pulses are outage candidates too (by default only ground strokes)"),
     },
 }
 
