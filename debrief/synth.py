@@ -505,6 +505,9 @@ def example_toml(seed: int = EXAMPLE_SEED, start: str = EXAMPLE_START, duration_
         "default_uncertainty_km = 0.5\n"
         "flash_detection_efficiency = 0.9\n"
         'flash_detection_efficiency_source = "assumed for this invented example"\n'
+        "\n[lines]\n"
+        "ground_flash_density = 2.0\n"
+        'ground_flash_density_source = "assumed for this invented example"\n'
     )
 
 
