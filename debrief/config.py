@@ -51,6 +51,7 @@ _SCHEMA: dict[str, dict[str, Key]] = {
         "sites": Key("sites.csv", _STR, "sites file, optional"),
         "lines": Key("lines.geojson", _STR, "power lines, GeoJSON, optional"),
         "outages": Key("outages.csv", _STR, "outage log, optional"),
+        "crew_log": Key("crew_log.csv", _STR, "crew log (site, stopped, resumed), optional"),
         "columns": Key({}, (dict,), "explicit column map, canonical name = header in the file"),
         "current_unit": Key("kA", _STR, "unit of the peak current column", choices=("kA", "A")),
         "type_codes": Key({}, (dict,), "map of the file's type codes to CG/IC, e.g. {G = 'CG', C = 'IC'}"),

@@ -1,0 +1,829 @@
+"""Did lightning strike near a site? Candidates, probabilities, and a sentence a letter can quote.
+
+For a site (a point with a radius, optionally a parcel outline) and a time window, every stroke
+whose error ellipse could reach the circle is a candidate: its reported position is within
+``radius + reach`` of the site, where ``reach`` is the distance beyond which its true position
+lies with probability below 1e-6 (:func:`debrief.uncertainty.reach_km`, from the stroke's own
+ellipse, not a fixed guess). Each candidate gets its geodesic distance and bearing from the site
+and ``p_within``, the probability under the bivariate-normal error model that its true point lies
+within the radius.
+
+Summary probability: ``p_any_within`` is the probability that at least one ground contact
+terminated within the radius, counting ground strokes only (low-amplitude positives flagged
+``likely_ic`` are left out unless asked), taking the strokes of one ground contact
+``(flash_id, ground_contact)`` together (their largest probability: they share one channel), and
+treating different contacts as independent: ``1 - prod(1 - p_contact)``.
+
+When nothing is found the network may still have missed a flash. With flash detection
+efficiency DE, the expected number of unrecorded ground flashes in the circle is
+``lambda = rho * A * (1 - DE) / DE`` with ``rho`` the density of recorded ground flashes in an
+annulus about the site (from the radius out to 10 km) during the window and ``A`` the circle's
+area; the chance of at least one is ``1 - exp(-lambda)`` (Poisson).
+
+Planar offsets are azimuthal equidistant about the site (``dx = d sin(az)``, ``dy = d cos(az)``
+from the WGS84 geodesic), the same plane as :class:`debrief.geodesy.LocalPlane`.
+
+References
+----------
+.. [1] Cummins, K. L. and Murphy, M. J. (2009). An overview of lightning locating systems:
+       history, techniques, and data uses. IEEE Trans. EMC 51(3), 499-518 (detection
+       efficiency and location error; from memory).
+.. [2] Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.spatial import cKDTree
+
+from .errors import InputError
+from .geodesy import MEAN_EARTH_RADIUS_KM, LocalPlane, haversine_km, inverse_km
+from .timeutil import iso_utc, zone
+from .uncertainty import ellipse_outline_xy, p_within_circle, p_within_polygon, reach_km, stroke_covariance
+
+#: Probability left out by the candidate search (per stroke).
+SEARCH_TAIL = 1e-6
+#: Outer radius of the annulus whose recorded ground-flash density sets the residual chance, km.
+DENSITY_RING_KM = 10.0
+
+CAUTIONS = [
+    "Lightning location networks miss some strokes and mislocate others; the network's detection "
+    "efficiency and location error apply to every figure here.",
+    "The probabilities model the network's reported location error as a bivariate normal "
+    "distribution; they are a model of that error, not proof that lightning did or did not strike.",
+    "The absence of a recorded stroke does not prove that none struck.",
+    "Surges can reach a building through connected power, telephone and data lines from strokes "
+    "well beyond the radius.",
+    "Damage needs inspection by qualified people; local codes and licensed practice govern any "
+    "conclusion drawn from this record.",
+]
+
+_NEEDED = ("time", "latitude", "longitude", "peak_current_ka", "type", "flash_id", "ground_contact", "likely_ic")
+_COMPASS = ("N", "NE", "E", "SE", "S", "SW", "W", "NW")
+
+
+@dataclass
+class SiteResult:
+    """The check of one site.
+
+    Attributes
+    ----------
+    name : str
+    candidates : DataFrame
+        One row per candidate stroke (see :func:`check_site`).
+    summary : dict
+        ``n_candidates``, ``n_ground_within``, ``nearest_km``, ``max_p_within``, ``p_any_within``,
+        ``n_contacts``, the site, radius and window, and parcel figures when a parcel was given.
+    sentence : str
+        Plain text for a claim letter.
+    residual : dict or None
+        Inputs and result of the unrecorded-flash chance, None without a detection efficiency.
+    cautions : list of str
+    """
+
+    name: str
+    candidates: pd.DataFrame
+    summary: dict
+    sentence: str
+    residual: dict | None
+    cautions: list = field(default_factory=lambda: list(CAUTIONS))
+
+    def to_dict(self) -> dict:
+        """Summary, sentence, residual and cautions as JSON-ready values."""
+        return {**_jsonable(self.summary), "sentence": self.sentence,
+                "residual": _jsonable(self.residual) if self.residual else None, "cautions": list(self.cautions)}
+
+
+def _jsonable(d: dict) -> dict:
+    out = {}
+    for k, v in d.items():
+        if isinstance(v, pd.Timestamp):
+            out[k] = iso_utc(v) if v is not pd.NaT else None
+        elif isinstance(v, (np.floating, float)):
+            out[k] = None if not math.isfinite(float(v)) else float(v)
+        elif isinstance(v, np.integer):
+            out[k] = int(v)
+        elif isinstance(v, np.bool_):
+            out[k] = bool(v)
+        else:
+            out[k] = v
+    return out
+
+
+def _unit_vectors(lat_deg, lon_deg):
+    lat = np.radians(np.asarray(lat_deg, dtype=float))
+    lon = np.radians(np.asarray(lon_deg, dtype=float))
+    c = np.cos(lat)
+    return np.column_stack([c * np.cos(lon), c * np.sin(lon), np.sin(lat)])
+
+
+def _chord(search_km):
+    # Geodesic vs great-circle on the mean sphere differ by < 0.6 %; 1 % + 50 m keeps the
+    # sphere search a superset of the exact geodesic test that follows.
+    ang = np.minimum((np.asarray(search_km, dtype=float) * 1.01 + 0.05) / MEAN_EARTH_RADIUS_KM, math.pi)
+    return 2.0 * np.sin(ang / 2.0)
+
+
+class StrokeIndex:
+    """A grouped stroke table prepared for repeated site queries (a k-d tree on unit vectors).
+
+    Unit vectors on the sphere make the search indifferent to the antimeridian and the poles.
+    Build once, query many sites; the build is the costly part.
+
+    Parameters
+    ----------
+    strokes : DataFrame
+        Grouped stroke table (DEVELOPERS.md: with ``flash_id``, ``ground_contact``,
+        ``likely_ic``).
+    config : EventConfig, optional
+        ``ellipse_confidence`` and ``default_uncertainty_km``.
+    """
+
+    def __init__(self, strokes: pd.DataFrame, config=None):
+        missing = [c for c in _NEEDED if c not in strokes.columns]
+        if missing:
+            raise InputError(
+                f"the stroke table lacks {', '.join(missing)}: group the strokes into flashes first "
+                "(debrief.flashes.group_flashes)")
+        self.strokes = strokes
+        self.config = config
+        self.confidence = config.get("ellipse_confidence") if config is not None else 0.5
+        self.default_km = config.get("default_uncertainty_km") if config is not None else None
+        self.lat = strokes["latitude"].to_numpy(dtype=float)
+        self.lon = strokes["longitude"].to_numpy(dtype=float)
+        self.t_ns = _time_ns(strokes["time"])
+        self.t_min_ns = int(self.t_ns.min()) if self.t_ns.size else 0
+        self.t_max_ns = int(self.t_ns.max()) if self.t_ns.size else 0
+        self.is_cg = (strokes["type"] == "CG").to_numpy(dtype=bool)
+        self.peak_ka = strokes["peak_current_ka"].to_numpy(dtype=float)
+        self.likely_ic = strokes["likely_ic"].to_numpy(dtype=bool)
+        self.flash_id = strokes["flash_id"].to_numpy(dtype=np.int64)
+        self.contact = strokes["ground_contact"].to_numpy(dtype=np.int64)
+        axes = np.column_stack([strokes[c].to_numpy(dtype=float) if c in strokes else np.full(len(strokes), np.nan)
+                                for c in ("semi_major_km", "semi_minor_km")])
+        with np.errstate(invalid="ignore"):
+            a_max = np.fmax(axes[:, 0], axes[:, 1]) if len(strokes) else np.empty(0)
+        fill = float(self.default_km) if self.default_km is not None else 0.0  # none: raises later if needed
+        a_max = np.where(np.isfinite(a_max), a_max, fill)
+        # Each stroke's own reach (largest sd x sqrt(-2 ln tail)): the search radius beyond the circle.
+        k = math.sqrt(-2.0 * math.log(1.0 - self.confidence))
+        reach = a_max / k * math.sqrt(-2.0 * math.log(SEARCH_TAIL))
+        self.reach_km = reach
+        self.max_reach_km = float(reach.max()) if reach.size else 0.0
+        # Strokes are split by reach into tiers (quantiles 50/90/99/99.9 %), one k-d tree each,
+        # searched with the tier's largest reach; the 0.1 % with the widest ellipses are scanned
+        # apart, so a few huge ellipses cannot widen every query.
+        self.tree_reach_km = float(np.quantile(reach, 0.999)) if reach.size else 0.0
+        self.wide = np.flatnonzero(reach > self.tree_reach_km)
+        self.wide_reach_km = reach[self.wide]
+        self.tiers = []
+        if reach.size:
+            edges = np.unique(np.quantile(reach, [0.5, 0.9, 0.99, 0.999]))
+            tier = np.searchsorted(edges, reach, side="left")  # tier k: reach <= edges[k]
+            xyz = _unit_vectors(self.lat, self.lon)
+            for k, top in enumerate(edges):
+                members = np.flatnonzero(tier == k)
+                if members.size:
+                    self.tiers.append((members, cKDTree(xyz[members]), float(top)))
+        self.tree = bool(self.tiers)
+        self._first_ground = {}
+
+    def pairs(self, lat_deg, lon_deg, base_km):
+        """(site index, stroke index) of strokes whose reported position is within about
+        `base_km` plus their own reach of each site (a superset; exact tests follow)."""
+        lat = np.atleast_1d(np.asarray(lat_deg, dtype=float))
+        lon = np.atleast_1d(np.asarray(lon_deg, dtype=float))
+        if lat.size == 0 or (not self.tiers and not self.wide.size):
+            return np.empty(0, np.int64), np.empty(0, np.int64)
+        base = np.broadcast_to(np.asarray(base_km, dtype=float), lat.shape)
+        xyz = _unit_vectors(lat, lon)
+        site_tree = cKDTree(xyz) if lat.size > 1 else None
+        site, stroke = [], []
+        for members, tree, top in self.tiers:
+            r = _chord(base + top)
+            if site_tree is None:
+                hits = np.asarray(tree.query_ball_point(xyz[0], r=float(r[0]), return_sorted=False), dtype=np.int64)
+                site.append(np.zeros(hits.size, dtype=np.int64))
+                stroke.append(members[hits])
+            else:
+                # Many sites: one tree-to-tree pass in C (no Python lists), then each site's own radius.
+                got = site_tree.sparse_distance_matrix(tree, float(r.max()), output_type="ndarray")
+                keep = got["v"] <= r[got["i"]]
+                site.append(got["i"][keep].astype(np.int64))
+                stroke.append(members[got["j"][keep]])
+        if self.wide.size:
+            step = max(1, 2_000_000 // self.wide.size)
+            for i0 in range(0, lat.size, step):
+                sl = slice(i0, i0 + step)
+                d = haversine_km(lat[sl, None], lon[sl, None], self.lat[self.wide][None, :], self.lon[self.wide][None, :])
+                si, wj = np.nonzero(d <= (base[sl, None] + self.wide_reach_km[None, :]) * 1.01 + 0.05)
+                site.append(si + i0)
+                stroke.append(self.wide[wj])
+        if not site:
+            return np.empty(0, np.int64), np.empty(0, np.int64)
+        return np.concatenate(site), np.concatenate(stroke)
+
+    def first_ground(self, include_likely_ic: bool):
+        """Indices of the first eligible ground stroke of every flash (for flash densities)."""
+        key = bool(include_likely_ic)
+        if key not in self._first_ground:
+            ok = self.is_cg & (key | ~self.likely_ic)
+            idx = np.flatnonzero(ok)
+            _, first = np.unique(self.flash_id[idx], return_index=True)
+            sel = idx[first]
+            tree = cKDTree(_unit_vectors(self.lat[sel], self.lon[sel])) if sel.size else None
+            self._first_ground[key] = (sel, tree)
+        return self._first_ground[key]
+
+
+def _time_ns(s: pd.Series) -> np.ndarray:
+    return pd.DatetimeIndex(pd.to_datetime(s, utc=True)).as_unit("ns").asi8.copy()
+
+
+def _validate_site(lat, lon, radius_km, where="site"):
+    lat, lon, radius_km = (np.asarray(v, dtype=float) for v in (lat, lon, radius_km))
+    if np.any(~np.isfinite(lat)) or np.any(np.abs(lat) > 90.0):
+        raise InputError(f"{where}: latitude must be within [-90, 90]")
+    if np.any(~np.isfinite(lon)) or np.any(np.abs(lon) > 180.0):
+        raise InputError(f"{where}: longitude must be within [-180, 180]")
+    if np.any(~np.isfinite(radius_km)) or np.any(radius_km <= 0.0):
+        raise InputError(f"{where}: the radius must be a positive number of km")
+    if np.any(radius_km > 1000.0):
+        raise InputError(f"{where}: a radius over 1000 km is not a site check")
+
+
+def _to_utc(t, tz, what):
+    from .timeutil import parse_user_time
+
+    if t is None or t is pd.NaT:
+        return None
+    if isinstance(t, str):
+        return parse_user_time(t, tz, what=what)
+    ts = pd.Timestamp(t)
+    if ts.tzinfo is None:
+        raise InputError(f"{what}: {t!r} has no UTC offset")
+    return ts.tz_convert("UTC").as_unit("ns")
+
+
+def _candidates(index: StrokeIndex, lat, lon, radius, t0, t1, extra_search_km=None, parcels=None):
+    """Candidate (site, stroke) pairs with distance, bearing, offsets, covariance and p_within.
+
+    `lat`, `lon`, `radius`, `t0`, `t1` (int64 ns) are per-site arrays. `parcels` maps a site
+    index to ``(plane_polygons, extent_km)`` in the site's plane.
+    """
+    base = radius if extra_search_km is None else np.maximum(radius, extra_search_km)
+    si, sj = index.pairs(lat, lon, base)
+    keep = (index.t_ns[sj] >= t0[si]) & (index.t_ns[sj] <= t1[si])
+    si, sj = si[keep], sj[keep]
+    # A cheap sphere test with each stroke's own reach (1 % + 50 m margin) before the geodesics.
+    hav = haversine_km(lat[si], lon[si], index.lat[sj], index.lon[sj])
+    keep = hav <= (base[si] + index.reach_km[sj]) * 1.01 + 0.05
+    si, sj = si[keep], sj[keep]
+    d_km, b_deg = inverse_km(lat[si], lon[si], index.lat[sj], index.lon[sj])
+    uniq, inv = np.unique(sj, return_inverse=True)
+    sxx_u, syy_u, sxy_u, filled_u = stroke_covariance(index.strokes.iloc[uniq], index.config)
+    sxx, syy, sxy, filled = sxx_u[inv], syy_u[inv], sxy_u[inv], filled_u[inv]
+    reach = reach_km(sxx, syy, sxy, SEARCH_TAIL)
+    br = np.radians(b_deg)
+    dx, dy = d_km * np.sin(br), d_km * np.cos(br)
+    near = d_km <= radius[si] + reach
+    p_parcel = np.full(si.shape, np.nan)
+    if parcels:
+        import shapely
+
+        for s, (polys, _extent) in parcels.items():
+            m = si == s
+            if not np.any(m):
+                continue
+            dist = shapely.distance(shapely.points(dx[m], dy[m]), shapely.MultiPolygon(polys) if len(polys) > 1 else polys[0])
+            close = dist <= reach[m]
+            near[np.flatnonzero(m)[close]] = True
+    si, sj, d_km, b_deg, dx, dy = si[near], sj[near], d_km[near], b_deg[near], dx[near], dy[near]
+    sxx, syy, sxy, filled, p_parcel = sxx[near], syy[near], sxy[near], filled[near], p_parcel[near]
+    p = p_within_circle(dx, dy, sxx, syy, sxy, radius[si]) if si.size else np.empty(0)
+    if parcels:
+        for s, (polys, _extent) in parcels.items():
+            m = si == s
+            if np.any(m):
+                acc = np.zeros(int(m.sum()))
+                for poly in polys:
+                    ext = np.asarray(poly.exterior.coords)
+                    holes = [(np.asarray(h.coords)[:, 0], np.asarray(h.coords)[:, 1]) for h in poly.interiors]
+                    acc += p_within_polygon(dx[m], dy[m], sxx[m], syy[m], sxy[m], ext[:, 0], ext[:, 1], holes=holes)
+                p_parcel[m] = np.clip(acc, 0.0, 1.0)
+    st = index.strokes
+    cols = {
+        "site_index": si,
+        "time": pd.to_datetime(index.t_ns[sj], utc=True),
+        "latitude": index.lat[sj], "longitude": index.lon[sj],
+        "peak_current_ka": index.peak_ka[sj],
+        "type": np.where(index.is_cg[sj], "CG", "IC"),
+        "flash_id": index.flash_id[sj], "ground_contact": index.contact[sj],
+        "likely_ic": index.likely_ic[sj],
+        "distance_km": d_km, "bearing_deg": b_deg, "p_within": p,
+    }
+    if parcels:
+        cols["p_within_parcel"] = p_parcel
+    for c in ("semi_major_km", "semi_minor_km", "major_bearing_deg", "source_row"):
+        if c in st.columns:
+            cols[c] = st[c].to_numpy()[sj]
+    cols["ellipse_from_default"] = filled
+    cols["dx_km"], cols["dy_km"] = dx, dy
+    cols["sxx_km2"], cols["syy_km2"], cols["sxy_km2"] = sxx, syy, sxy
+    cand = pd.DataFrame(cols)
+    cand["time"] = pd.to_datetime(cand["time"], utc=True).astype("datetime64[ns, UTC]")
+    return cand.sort_values(["site_index", "time"], kind="stable").reset_index(drop=True)
+
+
+def _p_any(cand: pd.DataFrame, col: str, eligible: np.ndarray, n_sites: int):
+    """Per site: 1 - prod over contacts (1 - max p of the contact), and the number of contacts."""
+    site = cand["site_index"].to_numpy()[eligible]
+    fid = cand["flash_id"].to_numpy()[eligible]
+    gc = cand["ground_contact"].to_numpy()[eligible]
+    p = np.minimum(cand[col].to_numpy(dtype=float)[eligible], 1.0)
+    if site.size == 0:
+        return np.zeros(n_sites), np.zeros(n_sites, dtype=np.int64)
+    order = np.lexsort((gc, fid, site))
+    site, fid, gc, p = site[order], fid[order], gc[order], p[order]
+    new = np.ones(site.size, dtype=bool)
+    new[1:] = (site[1:] != site[:-1]) | (fid[1:] != fid[:-1]) | (gc[1:] != gc[:-1])
+    starts = np.flatnonzero(new)
+    p_contact = np.maximum.reduceat(p, starts)  # strokes of one contact share a channel: the largest
+    owner = site[starts]
+    with np.errstate(divide="ignore"):  # a certain contact gives log(0) = -inf -> p_any = 1
+        log_none = np.log1p(-p_contact)
+    total = np.zeros(n_sites)
+    np.add.at(total, owner, log_none)
+    return 0.0 - np.expm1(total), np.bincount(owner, minlength=n_sites).astype(np.int64)  # 0.0 - : no -0.0
+
+
+def _residual(index, lat, lon, radius, t0, t1, area_km2, de, de_source, include_likely_ic):
+    """Unrecorded-flash chance per site (dict of arrays)."""
+    sel, tree = index.first_ground(include_likely_ic)
+    inner = np.asarray(radius, dtype=float)
+    outer = np.maximum(DENSITY_RING_KM, 2.0 * inner)
+    count = np.zeros(lat.size, dtype=np.int64)
+    if tree is not None:
+        lists = tree.query_ball_point(_unit_vectors(lat, lon), r=_chord(outer), return_sorted=False)
+        if lat.size == 1 and not isinstance(lists[0], list):
+            lists = [lists]
+        counts = np.fromiter((len(x) for x in lists), dtype=np.int64, count=len(lists))
+        si = np.repeat(np.arange(lat.size), counts)
+        sj = sel[np.fromiter((j for x in lists for j in x), dtype=np.int64, count=int(counts.sum()))]
+        d, _ = inverse_km(lat[si], lon[si], index.lat[sj], index.lon[sj])
+        ok = (d > inner[si]) & (d <= outer[si]) & (index.t_ns[sj] >= t0[si]) & (index.t_ns[sj] <= t1[si])
+        count = np.bincount(si[ok], minlength=lat.size)
+    ring_area = math.pi * (outer**2 - inner**2)
+    density = count / ring_area
+    lam = density * area_km2 * (1.0 - de) / de
+    return {
+        "ring_inner_km": inner, "ring_outer_km": outer, "n_ground_flashes_in_ring": count,
+        "ring_area_km2": ring_area, "density_per_km2": density, "area_km2": area_km2,
+        "detection_efficiency": np.full(lat.size, de), "de_source": de_source,
+        "expected_unrecorded": lam, "p_unrecorded": -np.expm1(-lam),
+    }
+
+
+def _resolve_de(config, detection_efficiency, de_source):
+    de = detection_efficiency
+    src = de_source
+    if de is None and config is not None:
+        de = config.get("flash_detection_efficiency")
+        src = src or config.get("flash_detection_efficiency_source")
+    if de is None:
+        return None, None
+    if not (isinstance(de, (int, float)) and 0.0 < de <= 1.0):
+        raise InputError(f"the flash detection efficiency must be in (0, 1], got {de!r}")
+    if not src:
+        raise InputError("a detection efficiency needs its source: give --de-source TEXT or "
+                         "flash_detection_efficiency_source in event.toml")
+    return float(de), str(src)
+
+
+def _window_bounds(index, start, end, n):
+    t0 = np.full(n, np.iinfo(np.int64).min, dtype=np.int64)
+    t1 = np.full(n, np.iinfo(np.int64).max, dtype=np.int64)
+    if start is not None:
+        t0[:] = start if np.ndim(start) == 0 else start
+    if end is not None:
+        t1[:] = end if np.ndim(end) == 0 else end
+    return t0, t1
+
+
+def _parcel_in_plane(parcel, lat, lon):
+    """A lon/lat (Multi)Polygon -> list of shapely Polygons in the site's plane (km), and extent."""
+    import shapely
+
+    plane = LocalPlane(lat, lon)
+    parts = list(parcel.geoms) if parcel.geom_type == "MultiPolygon" else [parcel]
+    polys = []
+    for part in parts:
+        def proj(ring):
+            c = np.asarray(ring.coords)
+            x, y = plane.to_xy_km(c[:, 1], c[:, 0])
+            return np.column_stack([x, y])
+        polys.append(shapely.Polygon(proj(part.exterior), [proj(h) for h in part.interiors]))
+    extent = max(float(np.max(np.hypot(*np.asarray(p.exterior.coords).T))) for p in polys)
+    return polys, extent
+
+
+def _summaries(index, cand, lat, lon, radius, t0, t1, include_likely_ic, de, de_source, parcels=None):
+    n = lat.size
+    eligible = (cand["type"].to_numpy() == "CG") & (include_likely_ic | ~cand["likely_ic"].to_numpy(dtype=bool))
+    si = cand["site_index"].to_numpy()
+    within = eligible & (cand["distance_km"].to_numpy() <= radius[si])
+    p_any, n_contacts = _p_any(cand, "p_within", eligible, n)
+    out = pd.DataFrame({
+        "n_candidates": np.bincount(si, minlength=n),
+        "n_ground_candidates": np.bincount(si[eligible], minlength=n),
+        "n_ground_within": np.bincount(si[within], minlength=n),
+        "n_contacts": n_contacts,
+    })
+    nearest = np.full(n, np.inf)
+    np.minimum.at(nearest, si[eligible], cand["distance_km"].to_numpy()[eligible])
+    nearest[~np.isfinite(nearest)] = np.nan
+    maxp = np.zeros(n)
+    best = np.full(n, -1, dtype=np.int64)
+    rows = np.flatnonzero(eligible)
+    if rows.size:
+        pv = cand["p_within"].to_numpy()[rows]
+        order = np.lexsort((rows, -pv, si[rows]))  # per site: largest p, then the earliest row
+        srt = si[rows][order]
+        first = np.ones(srt.size, dtype=bool)
+        first[1:] = srt[1:] != srt[:-1]
+        best[srt[first]] = rows[order][first]
+        maxp[srt[first]] = pv[order][first]
+    out["nearest_km"] = nearest
+    out["max_p_within"] = maxp
+    out["p_any_within"] = p_any
+    out["best_row"] = best
+    area = math.pi * radius**2
+    if parcels is not None:
+        pa, _ = _p_any(cand, "p_within_parcel", eligible & cand["p_within_parcel"].notna().to_numpy(), n)
+        mp = np.full(n, np.nan)
+        parea = np.full(n, np.nan)
+        for s, (polys, _extent) in parcels.items():
+            parea[s] = sum(p.area for p in polys)
+            m = eligible & (si == s)
+            mp[s] = float(cand.loc[m, "p_within_parcel"].max()) if np.any(m) else 0.0
+        has = np.isfinite(parea)
+        out["parcel_area_km2"] = parea
+        out["max_p_within_parcel"] = mp
+        out["p_any_within_parcel"] = np.where(has, pa, np.nan)
+    resid = None
+    if de is not None:
+        resid = _residual(index, lat, lon, radius, t0, t1, area, de, de_source, include_likely_ic)
+        if parcels is not None:
+            parea = out["parcel_area_km2"].to_numpy()
+            lam_p = resid["density_per_km2"] * np.nan_to_num(parea) * (1.0 - de) / de
+            resid["p_unrecorded_parcel"] = np.where(np.isfinite(parea), -np.expm1(-lam_p), np.nan)
+    return out, resid
+
+
+# --- sentences --------------------------------------------------------------------------------
+
+def compass_point(bearing_deg: float) -> str:
+    """8-point compass word for a bearing (degrees clockwise from north)."""
+    return _COMPASS[int(((float(bearing_deg) % 360.0) + 22.5) // 45.0) % 8]
+
+
+def percent(p: float) -> str:
+    """A probability as plain-language percent text."""
+    p = float(p)
+    if p >= 0.9995:
+        return "more than 99.9%"
+    if p < 0.0005:
+        return "less than 0.1%"
+    if p >= 0.99:
+        return f"{100 * p:.1f}%"
+    if p >= 0.1:
+        return f"{100 * p:.0f}%"
+    if p >= 0.01:
+        return f"{100 * p:.1f}%"
+    return f"{100 * p:.2f}%"
+
+
+def _km(x: float) -> str:
+    return f"{x:.2f} km" if x < 10 else f"{x:.1f} km"
+
+
+def _clock(ts: pd.Timestamp, tz) -> str:
+    t = pd.Timestamp(ts).tz_convert("UTC")
+    z = zone(tz)
+    if z is None or tz == "UTC":
+        return t.strftime("%H:%M:%S UTC")
+    return t.tz_convert(z).strftime("%H:%M:%S %Z") + t.strftime(" (%H:%M:%S UTC)")
+
+
+def _when(t0: pd.Timestamp, t1: pd.Timestamp, tz) -> str:
+    z = zone(tz)
+    a, b = t0.tz_convert("UTC"), t1.tz_convert("UTC")
+    utc = f"{a:%Y-%m-%d %H:%M} and {b:%H:%M} UTC" if a.date() == b.date() else f"{a:%Y-%m-%d %H:%M} and {b:%Y-%m-%d %H:%M} UTC"
+    if z is None or tz == "UTC":
+        return f"between {utc}"
+    la, lb = a.tz_convert(z), b.tz_convert(z)
+    second = f"{lb:%H:%M}" if la.date() == lb.date() else f"{lb:%Y-%m-%d %H:%M}"
+    return f"between {la:%Y-%m-%d %H:%M} and {second} {lb:%Z} ({utc})"
+
+
+def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t0, t1, tz, include_likely_ic, parcel=None) -> str:
+    extra = " (low-amplitude positive reports included)" if include_likely_ic else ""
+    r = f"{radius:g} km"
+    when = _when(t0, t1, tz)
+    n = int(summ["n_ground_within"])
+    if n:
+        lead = f"{n} ground stroke{'s were' if n > 1 else ' was'}{extra} located within {r} of {name} {when}"
+    else:
+        lead = f"No ground stroke{extra} was located within {r} of {name} {when}"
+    parts = [lead]
+    if best is not None:
+        ka = best["peak_current_ka"]
+        sign = "\u2212" if ka < 0 else "+"
+        desc = (f"a {sign}{abs(ka):.0f} kA stroke at {_clock(best['time'], tz)}, "
+                f"{_km(best['distance_km'])} to the {compass_point(best['bearing_deg'])}")
+        phrase = "the most likely one" if n else "the nearest candidate with the highest probability"
+        parts.append(f"; {phrase}, {desc}, has an estimated probability of "
+                     f"{percent(best['p_within'])} of having terminated within the radius, given the "
+                     "network's reported location error")
+        k = int(summ["n_contacts"])
+        if k > 1:
+            parts.append(f". Taking the {k} ground contacts that could have reached the circle as "
+                         f"independent, the probability that at least one terminated within {r} is "
+                         f"{percent(summ['p_any_within'])}")
+    elif not n:
+        parts.append(", and no ground stroke was close enough for its location error to reach the circle")
+    text = "".join(parts) + "."
+    if parcel is not None and math.isfinite(summ.get("parcel_area_km2", float("nan"))):
+        text += (f" For the parcel ({summ['parcel_area_km2']:.3g} km\u00b2) the probability that at least one "
+                 f"ground contact terminated on it is {percent(summ['p_any_within_parcel'])}.")
+    if resid is not None:
+        text += (f" With a flash detection efficiency of {100 * resid['detection_efficiency']:.0f}% "
+                 f"({resid['de_source']}) and {resid['n_ground_flashes_in_ring']} recorded ground flashes "
+                 f"between {resid['ring_inner_km']:g} and {resid['ring_outer_km']:g} km of the site in the window, "
+                 f"the chance that an unrecorded flash struck within {r} is {percent(resid['p_unrecorded'])}.")
+    else:
+        text += " The network's detection efficiency was not given, so the chance of an unrecorded flash is not stated."
+    return text
+
+
+# --- public API -------------------------------------------------------------------------------
+
+def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, config=None, parcel=None,
+               include_likely_ic=False, detection_efficiency=None, de_source=None, name="site",
+               index: StrokeIndex | None = None) -> SiteResult:
+    """Check one site: candidate strokes, probabilities, a sentence and the residual chance.
+
+    Parameters
+    ----------
+    strokes : DataFrame
+        Grouped stroke table (``flash_id``, ``ground_contact``, ``likely_ic``); may be None when
+        `index` is given.
+    lat_deg, lon_deg : float
+        Site, WGS84 degrees.
+    radius_km : float
+        Circle radius, km.
+    start, end : Timestamp or ISO text, optional
+        Inclusive time window (text without an offset is read in the event's ``time_zone``).
+    config : EventConfig, optional
+        ``ellipse_confidence``, ``default_uncertainty_km``, ``time_zone`` and the detection
+        efficiency with its source.
+    parcel : shapely Polygon or MultiPolygon, optional
+        Parcel outline in lon/lat (:func:`debrief.io.sites.read_parcel`).
+    include_likely_ic : bool
+        Count low-amplitude positive ground reports (flagged ``likely_ic``).
+    detection_efficiency, de_source : float, str, optional
+        Flash detection efficiency (0, 1] and where it comes from; override event.toml.
+    name : str
+        Site name for the sentence.
+    index : StrokeIndex, optional
+        A prebuilt index (repeated queries).
+
+    Returns
+    -------
+    SiteResult
+        ``candidates``: ``time, latitude, longitude, peak_current_ka, type, flash_id,
+        ground_contact, likely_ic, distance_km, bearing_deg, p_within`` (+ ``p_within_parcel``),
+        ellipse columns, ``source_row``, ``ellipse_from_default``, plane offsets and covariance.
+
+    References
+    ----------
+    Bivariate-normal location error: :mod:`debrief.uncertainty`. Detection efficiency: Cummins
+    and Murphy (2009) [1]_.
+    """
+    _validate_site(lat_deg, lon_deg, radius_km)
+    if index is None:
+        index = StrokeIndex(strokes, config)
+    tz = config.time_zone if config is not None else None
+    t_start = _to_utc(start, tz, "start")
+    t_end = _to_utc(end, tz, "end")
+    if t_start is not None and t_end is not None and t_end <= t_start:
+        raise InputError("the window's end is not after its start")
+    de, src = _resolve_de(config, detection_efficiency, de_source)
+    lat = np.array([float(lat_deg)])
+    lon = np.array([float(lon_deg)])
+    radius = np.array([float(radius_km)])
+    t0, t1 = _window_bounds(index, t_start.value if t_start is not None else None,
+                            t_end.value if t_end is not None else None, 1)
+    parcels = None
+    extra = None
+    if parcel is not None:
+        polys, extent = _parcel_in_plane(parcel, float(lat_deg), float(lon_deg))
+        parcels = {0: (polys, extent)}
+        extra = np.array([extent])
+    cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels)
+    summ, resid = _summaries(index, cand, lat, lon, radius, t0, t1, include_likely_ic, de, src, parcels)
+    return _result(index, cand, summ, resid, 0, name, lat, lon, radius, t_start, t_end, tz, include_likely_ic, parcel,
+                   index.confidence)
+
+
+def _result(index, cand, summ, resid, s, name, lat, lon, radius, t_start, t_end, tz, include_likely_ic, parcel, confidence,
+            cols=None):
+    """One site's SiteResult; with `cols` (precomputed summary arrays) the candidate table is left empty."""
+    if cols is None:
+        row = {c: summ[c].to_numpy()[s] for c in summ.columns}
+        mine = cand[cand["site_index"].to_numpy() == s]
+        n_default = int(mine["ellipse_from_default"].sum())
+    else:
+        row = {c: v[s] for c, v in cols.items() if not c.startswith("_")}
+        mine = cols["_empty"]
+        n_default = int(row["n_default"])
+    best = None
+    if row["best_row"] >= 0:
+        b = int(row["best_row"])
+        best = {c: cand[c].to_numpy()[b] for c in ("peak_current_ka", "distance_km", "bearing_deg", "p_within")}
+        best["time"] = cand["time"].iloc[b]
+    r_s = {k: (v[s] if isinstance(v, np.ndarray) else v) for k, v in resid.items()} if resid else None
+    w0 = t_start if t_start is not None else _extent(index, "min")
+    w1 = t_end if t_end is not None else _extent(index, "max")
+    summary = {
+        "name": name, "latitude": float(lat[s]), "longitude": float(lon[s]), "radius_km": float(radius[s]),
+        "start": w0, "end": w1, "ellipse_confidence": confidence,
+        "n_candidates": int(row["n_candidates"]), "n_ground_candidates": int(row["n_ground_candidates"]),
+        "n_ground_within": int(row["n_ground_within"]), "n_contacts": int(row["n_contacts"]),
+        "nearest_km": float(row["nearest_km"]), "max_p_within": float(row["max_p_within"]),
+        "p_any_within": float(row["p_any_within"]), "include_likely_ic": bool(include_likely_ic),
+        "contacts_independent": True,
+        "n_ellipse_from_default": n_default,
+    }
+    if parcel is not None:
+        for k in ("parcel_area_km2", "max_p_within_parcel", "p_any_within_parcel"):
+            summary[k] = float(row[k])
+    if r_s is not None:
+        r_s = {k: (float(v) if isinstance(v, (np.floating, float)) else int(v) if isinstance(v, np.integer) else v)
+               for k, v in r_s.items()}
+        summary["p_unrecorded"] = r_s["p_unrecorded"]
+    sentence = _sentence(name, float(radius[s]), summary, best, r_s, w0, w1, tz, include_likely_ic, parcel)
+    out = mine.drop(columns=["site_index"]).reset_index(drop=True)
+    return SiteResult(name=name, candidates=out, summary=summary, sentence=sentence, residual=r_s)
+
+
+def _extent(index, how):
+    if index.t_ns.size == 0:
+        return pd.NaT
+    return pd.Timestamp(int(index.t_min_ns if how == "min" else index.t_max_ns), tz="UTC")
+
+
+#: Summary columns of :func:`check_sites`, in order.
+SITES_COLUMNS = (
+    "name", "latitude", "longitude", "radius_km", "start", "end", "n_candidates", "n_ground_candidates",
+    "n_ground_within", "n_contacts", "nearest_km", "max_p_within", "p_any_within", "p_unrecorded", "sentence",
+)
+
+
+def check_sites(strokes, sites: pd.DataFrame, config=None, *, include_likely_ic=False, detection_efficiency=None,
+                de_source=None, index: StrokeIndex | None = None, sentences: bool = True,
+                return_candidates: bool = False):
+    """Check many sites in one pass over a k-d tree of the strokes.
+
+    Parameters
+    ----------
+    strokes : DataFrame
+        Grouped stroke table (may be None when `index` is given).
+    sites : DataFrame
+        ``name, latitude, longitude, radius_km`` and optional ``start, end`` (UTC timestamps,
+        NaT = open), ``parcel_file`` (:func:`debrief.io.sites.read_sites` gives this form).
+        Rows without ``radius_km`` (alert-only sites) are left out.
+    config, include_likely_ic, detection_efficiency, de_source :
+        As for :func:`check_site`.
+    index : StrokeIndex, optional
+    sentences : bool
+        Also write each site's sentence (slower for very many sites).
+    return_candidates : bool
+        Also return the candidate table with a ``site`` column.
+
+    Returns
+    -------
+    DataFrame
+        One row per site with :data:`SITES_COLUMNS` (+ parcel figures where a parcel is given);
+        with `return_candidates`, ``(summary, candidates)``.
+    """
+    from .io.sites import read_parcel
+
+    for c in ("name", "latitude", "longitude", "radius_km"):
+        if c not in sites.columns:
+            raise InputError(f"the sites table lacks the column {c!r}")
+    s = sites[np.isfinite(sites["radius_km"].to_numpy(dtype=float))].reset_index(drop=True)
+    if index is None:
+        index = StrokeIndex(strokes, config)
+    lat = s["latitude"].to_numpy(dtype=float)
+    lon = s["longitude"].to_numpy(dtype=float)
+    radius = s["radius_km"].to_numpy(dtype=float)
+    _validate_site(lat, lon, radius, where="sites table")
+    n = len(s)
+    t0, t1 = _window_bounds(index, None, None, n)
+    for col, arr in (("start", t0), ("end", t1)):
+        if col in s.columns:
+            t = pd.to_datetime(s[col], utc=True)
+            ok = t.notna().to_numpy()
+            arr[ok] = _time_ns(t[ok])
+    de, src = _resolve_de(config, detection_efficiency, de_source)
+    parcels = {}
+    shapes = {}
+    if "parcel_file" in s.columns:
+        for i, pf in enumerate(s["parcel_file"].fillna("").astype(str)):
+            if pf:
+                shapes[i] = read_parcel(pf)
+                parcels[i] = _parcel_in_plane(shapes[i], lat[i], lon[i])
+    extra = None
+    if parcels:
+        extra = np.zeros(n)
+        for i, (_p, ext) in parcels.items():
+            extra[i] = ext
+    cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels or None)
+    summ, resid = _summaries(index, cand, lat, lon, radius, t0, t1, include_likely_ic, de, src, parcels or None)
+    out = pd.DataFrame({"name": s["name"].to_numpy(), "latitude": lat, "longitude": lon, "radius_km": radius})
+    out["start"] = pd.to_datetime(np.where(t0 == np.iinfo(np.int64).min, np.datetime64("NaT"), t0.astype("datetime64[ns]")), utc=True)
+    out["end"] = pd.to_datetime(np.where(t1 == np.iinfo(np.int64).max, np.datetime64("NaT"), t1.astype("datetime64[ns]")), utc=True)
+    for c in ("n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "nearest_km", "max_p_within", "p_any_within"):
+        out[c] = summ[c].to_numpy()
+    out["p_unrecorded"] = resid["p_unrecorded"] if resid is not None else np.nan
+    if parcels:
+        for c in ("parcel_area_km2", "max_p_within_parcel", "p_any_within_parcel"):
+            out[c] = summ[c].to_numpy()
+    if sentences:
+        tz = config.time_zone if config is not None else None
+        texts = []
+        cols = {c: summ[c].to_numpy() for c in summ.columns}
+        cols["_empty"] = cand.iloc[:0]
+        cols["n_default"] = np.bincount(cand["site_index"].to_numpy(), weights=cand["ellipse_from_default"].to_numpy(dtype=float), minlength=n)
+        for i in range(n):
+            ts = pd.Timestamp(t0[i], tz="UTC") if t0[i] != np.iinfo(np.int64).min else None
+            te = pd.Timestamp(t1[i], tz="UTC") if t1[i] != np.iinfo(np.int64).max else None
+            texts.append(_result(index, cand, summ, resid, i, str(out["name"].iat[i]), lat, lon, radius, ts, te, tz,
+                                 include_likely_ic, shapes.get(i), index.confidence, cols).sentence)
+        out["sentence"] = texts
+    else:
+        out["sentence"] = ""
+    if return_candidates:
+        c = cand.copy()
+        c.insert(0, "site", out["name"].to_numpy()[c["site_index"].to_numpy()])
+        return out, c.drop(columns=["site_index"])
+    return out
+
+
+def candidates_geojson(result: SiteResult, parcel=None, n_outline: int = 36) -> dict:
+    """GeoJSON (RFC 7946) FeatureCollection: the site circle, candidates, their ellipses, parcel.
+
+    Ellipses are drawn at their reported confidence, in the site's azimuthal equidistant plane.
+    """
+    s = result.summary
+    plane = LocalPlane(s["latitude"], s["longitude"])
+    t = np.linspace(0, 2 * np.pi, 73)
+    # RFC 7946 right-hand rule: exterior rings counter-clockwise (x = r cos t, y = r sin t)
+    cy, cx = plane.to_latlon(s["radius_km"] * np.cos(t), s["radius_km"] * np.sin(t))
+    feats = [{"type": "Feature", "properties": {"kind": "site_circle", "name": result.name, "radius_km": s["radius_km"]},
+              "geometry": {"type": "Polygon", "coordinates": [np.column_stack([cx, cy]).round(7).tolist()]}},
+             {"type": "Feature", "properties": {"kind": "site", "name": result.name},
+              "geometry": {"type": "Point", "coordinates": [s["longitude"], s["latitude"]]}}]
+    if parcel is not None:
+        import shapely
+
+        feats.append({"type": "Feature", "properties": {"kind": "parcel", "name": result.name},
+                      "geometry": shapely.geometry.mapping(shapely.orient_polygons(parcel, exterior_cw=False))})
+    c = result.candidates
+    for row in c.itertuples(index=False):
+        props = {"kind": "stroke", "time": iso_utc(row.time), "peak_current_ka": float(row.peak_current_ka),
+                 "type": row.type, "flash_id": int(row.flash_id), "ground_contact": int(row.ground_contact),
+                 "distance_km": round(float(row.distance_km), 4), "bearing_deg": round(float(row.bearing_deg), 2),
+                 "p_within": float(row.p_within)}
+        feats.append({"type": "Feature", "properties": props,
+                      "geometry": {"type": "Point", "coordinates": [float(row.longitude), float(row.latitude)]}})
+        a = row.semi_major_km if np.isfinite(getattr(row, "semi_major_km", np.nan)) else None
+        if row.ellipse_from_default or a is None:
+            k = math.sqrt(-2.0 * math.log(1.0 - result.summary["ellipse_confidence"]))
+            a = b = math.sqrt(row.sxx_km2) * k
+            br = 0.0
+        else:
+            b, br = row.semi_minor_km, row.major_bearing_deg
+        ex, ey = ellipse_outline_xy(a, b, br, n_outline)
+        ly, lx = plane.to_latlon(row.dx_km + ex, row.dy_km + ey)
+        ring = np.column_stack([lx, ly])[::-1]  # the outline runs clockwise; RFC 7946 wants counter-clockwise
+        ring = np.vstack([ring, ring[:1]]).round(7).tolist()
+        feats.append({"type": "Feature", "properties": {"kind": "error_ellipse", "time": props["time"],
+                                                         "confidence": result.summary["ellipse_confidence"]},
+                      "geometry": {"type": "Polygon", "coordinates": [ring]}})
+    return {"type": "FeatureCollection", "features": feats}

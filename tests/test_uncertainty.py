@@ -1,0 +1,351 @@
+"""Error ellipse -> bivariate normal -> probabilities, checked against scipy and Monte Carlo."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import example, given, settings
+from hypothesis import strategies as st
+from scipy import integrate, stats
+from scipy.special import ndtr
+
+from debrief import uncertainty as U
+from debrief.errors import InputError
+
+
+def _mvn_box_dblquad(mean, cov, x_lo, x_hi, y_lo_fn, y_hi_fn):
+    """scipy.integrate (nquad, the engine of dblquad; epsabs 1e-9) of
+    scipy.stats.multivariate_normal's pdf over {x_lo < x < x_hi, y_lo(x) < y < y_hi(x)}."""
+    f = stats.multivariate_normal(mean=mean, cov=cov).pdf
+    val, _ = integrate.nquad(
+        lambda y, x: f([x, y]), [lambda x: (y_lo_fn(x), y_hi_fn(x)), (x_lo, x_hi)],
+        opts=[{"epsabs": 1e-10, "epsrel": 1e-10, "limit": 200}, {"epsabs": 1e-9, "epsrel": 1e-9, "limit": 200}],
+    )
+    return val
+
+
+def _disc_dblquad(m, cov, r):
+    """P(|T| <= r), T ~ N(m, cov), by adaptive quadrature of multivariate_normal.pdf over the disc.
+
+    The disc is invariant under rotation, so the problem is first rotated (numpy eigh) to the
+    error's principal axes (outer variable the minor axis); the region is clipped to 10 standard
+    deviations about the mean (omitted mass < 1e-20) so the adaptive rule sees the peak.
+    """
+    vals, vecs = np.linalg.eigh(np.asarray(cov, dtype=float))
+    mm = vecs.T @ np.asarray(m, dtype=float)  # coordinates along (minor, major)
+    s_min, s_maj = math.sqrt(vals[0]), math.sqrt(vals[1])
+    x_lo, x_hi = max(-r, mm[0] - 10 * s_min), min(r, mm[0] + 10 * s_min)
+    if x_hi <= x_lo:
+        return 0.0
+    w = lambda x: math.sqrt(max(r * r - x * x, 0.0))  # noqa: E731
+    lo = lambda x: max(-w(x), mm[1] - 10 * s_maj)  # noqa: E731
+    hi = lambda x: max(min(w(x), mm[1] + 10 * s_maj), lo(x))  # noqa: E731
+    return _mvn_box_dblquad(list(mm), np.diag(vals), x_lo, x_hi, lo, hi)
+
+
+# --- scale factors and covariance -------------------------------------------------------------
+
+@pytest.mark.parametrize("p, k", [(0.5, 1.177410), (0.9, 2.145966), (0.95, 2.447747), (0.99, 3.034854)])
+def test_sigma_scale_is_chi_square_quantile(p, k):
+    # scipy.stats.chi2.ppf(p, 2): 2-D normal contour holding p; values as in REFERENCES.md section 2 (X).
+    assert U.sigma_scale(p) == pytest.approx(math.sqrt(stats.chi2.ppf(p, 2)), rel=1e-12)
+    assert U.sigma_scale(p) == pytest.approx(k, abs=5e-7)
+    # The 1-D factor (normal quantile 0.674490 for 50 %) must not be used.
+    assert abs(U.sigma_scale(0.5) - stats.norm.ppf(0.75)) > 0.5
+
+
+def test_one_sigma_ellipse_holds_39_percent():
+    # 1 - exp(-1/2) = 0.3935 (REFERENCES.md section 2; chi-square 2 df).
+    assert stats.chi2.cdf(1.0, 2) == pytest.approx(0.393469, abs=1e-6)
+    k = U.sigma_scale(stats.chi2.cdf(1.0, 2))
+    assert k == pytest.approx(1.0, abs=1e-12)
+
+
+@pytest.mark.parametrize("p", [0.0, 1.0, -0.1, 1.5, float("nan")])
+def test_sigma_scale_rejects_bad_confidence(p):
+    with pytest.raises(InputError):
+        U.sigma_scale(p)
+
+
+def test_covariance_check_case():
+    # REFERENCES.md section 2 (X): 0.5 x 0.25 km 50 % ellipse at 30 deg.
+    sxx, syy, sxy = U.ellipse_covariance(0.5, 0.25, 30.0, 0.5)
+    assert float(sxx) == pytest.approx(0.078897, abs=1e-6)
+    assert float(syy) == pytest.approx(0.146524, abs=1e-6)
+    assert float(sxy) == pytest.approx(0.058566, abs=1e-6)
+    s1, s2, _ = U.principal_axes(sxx, syy, sxy)
+    assert float(s1) == pytest.approx(0.424661, abs=1e-6)
+    assert float(s2) == pytest.approx(0.212330, abs=1e-6)
+
+
+def test_covariance_orientation_north_and_east():
+    # Bearing 0 = major axis north (y), 90 = east (x): common practice for ellipse bearings.
+    sxx, syy, sxy = U.ellipse_covariance(2.0, 1.0, 0.0, 0.5)
+    k = U.sigma_scale(0.5)
+    assert (float(sxx), float(syy)) == pytest.approx(((1 / k) ** 2, (2 / k) ** 2))
+    assert float(sxy) == pytest.approx(0.0, abs=1e-15)
+    sxx, syy, _ = U.ellipse_covariance(2.0, 1.0, 90.0, 0.5)
+    assert float(sxx) == pytest.approx((2 / k) ** 2)
+
+
+# --- circle -----------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("r_over_s, d_over_s", [(0.01, 0.0), (0.5, 0.3), (1.0, 1.0), (3.0, 2.5), (20.0, 19.0), (100.0, 101.0), (2.0, 8.0)])
+def test_circular_quadrature_matches_ncx2(r_over_s, d_over_s):
+    # Circular error: P = ncx2.cdf((R/s)^2, 2, (d/s)^2) (scipy.stats.ncx2; REFERENCES.md section 2).
+    # The quadrature path (the one used for ellipses) is checked against it.
+    s = 0.3
+    exact = stats.ncx2.cdf(r_over_s**2, 2, d_over_s**2)
+    got = U._circle_quadrature(np.array([0.6 * d_over_s * s]), np.array([0.8 * d_over_s * s]),
+                               np.array([s]), np.array([s]), np.array([r_over_s * s]))[0]
+    assert got == pytest.approx(exact, abs=1e-6)
+    pub = U.p_within_circle(0.6 * d_over_s * s, 0.8 * d_over_s * s, s * s, s * s, 0.0, r_over_s * s)
+    assert float(pub) == pytest.approx(exact, abs=1e-6)
+
+
+def _grid_sample(seed, n):
+    """A seeded sample of the stated accuracy grid: R/sigma 0.01-100, axis ratio 1-100,
+    offsets up to 50 major semi-axes; three in four placed within about one standard deviation
+    (in the offset's direction) of the circle's edge, where the probability is neither 0 nor 1."""
+    rng = np.random.default_rng(seed)
+    k = U.sigma_scale(0.5)
+    cases = []
+    for i in range(n):
+        a = 0.5
+        ratio = 10 ** rng.uniform(0, 2)
+        b = a / ratio
+        r = (a / k) * 10 ** rng.uniform(-2, 2)
+        bearing = rng.uniform(0, 180)
+        ang = rng.uniform(0, 2 * math.pi)
+        if i % 4:
+            sxx, syy, sxy = U.ellipse_covariance(a, b, bearing, 0.5)
+            u = (math.cos(ang), math.sin(ang))
+            s_dir = math.sqrt(u[0] ** 2 * sxx + u[1] ** 2 * syy + 2 * u[0] * u[1] * sxy)
+            off = max(0.0, r + rng.normal(0, 1) * s_dir)
+        else:
+            off = rng.uniform(0, 1) ** 2 * 50 * a
+        cases.append((off * math.cos(ang), off * math.sin(ang), a, b, bearing, r))
+    return cases
+
+
+@pytest.mark.parametrize("case", _grid_sample(2026, 16))
+def test_elliptical_circle_vs_dblquad(case):
+    # scipy.integrate.dblquad of scipy.stats.multivariate_normal.pdf (epsabs 1e-9); target < 1e-4.
+    dx, dy, a, b, bearing, r = case
+    sxx, syy, sxy = U.ellipse_covariance(a, b, bearing, 0.5)
+    got = float(U.p_within_circle(dx, dy, sxx, syy, sxy, r))
+    ref = _disc_dblquad([dx, dy], [[float(sxx), float(sxy)], [float(sxy), float(syy)]], r)
+    assert got == pytest.approx(ref, abs=1e-4)
+
+
+def test_elliptical_circle_vs_monte_carlo():
+    # Seeded Monte Carlo, 400,000 draws per case; tolerance 5 binomial standard errors + 1e-4.
+    rng = np.random.default_rng(7)
+    n = 400_000
+    for dx, dy, a, b, br, r in [(0.3, 0.2, 0.5, 0.1, 30.0, 0.4), (1.0, -0.5, 2.0, 0.5, 120.0, 1.0), (0.0, 0.0, 1.0, 0.2, 0.0, 0.3)]:
+        sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(a, b, br, 0.5))
+        pts = rng.multivariate_normal([dx, dy], [[sxx, sxy], [sxy, syy]], size=n)
+        mc = np.mean(np.hypot(pts[:, 0], pts[:, 1]) <= r)
+        got = float(U.p_within_circle(dx, dy, sxx, syy, sxy, r))
+        assert abs(got - mc) < 5 * math.sqrt(mc * (1 - mc) / n) + 1e-4
+
+
+def test_circle_far_and_deep_and_nan():
+    sxx, syy, sxy = U.ellipse_covariance(0.5, 0.2, 45.0, 0.5)
+    p = U.p_within_circle([100.0, 0.0, np.nan], [0.0, 0.0, 0.0], sxx, syy, sxy, 50.0)
+    assert p[0] == 0.0 and p[1] == 1.0 and np.isnan(p[2])
+    with pytest.raises(InputError):
+        U.p_within_circle(0.0, 0.0, sxx, syy, sxy, 0.0)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    st.floats(-5, 5), st.floats(-5, 5), st.floats(0.05, 3), st.floats(0.01, 1), st.floats(0, 180),
+    st.floats(0.05, 5), st.floats(0.05, 5),
+)
+def test_circle_probability_is_a_probability_and_grows_with_radius(dx, dy, a, ratio, br, r1, r2):
+    # Invariants: 0 <= P <= 1; P is non-decreasing in the radius.
+    sxx, syy, sxy = U.ellipse_covariance(a, a * ratio, br, 0.5)
+    p1, p2 = U.p_within_circle(dx, dy, sxx, syy, sxy, np.array([min(r1, r2), max(r1, r2)]))
+    assert 0.0 <= p1 <= p2 + 1e-9 <= 1.0 + 1e-9
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.floats(0, 180), st.floats(-3, 3), st.floats(-3, 3))
+def test_circle_probability_is_rotation_invariant(rot_deg, dx, dy):
+    # Rotating the offset and the ellipse together leaves P unchanged (the circle is symmetric).
+    sxx, syy, sxy = U.ellipse_covariance(1.0, 0.3, 20.0, 0.5)
+    p0 = float(U.p_within_circle(dx, dy, sxx, syy, sxy, 1.2))
+    t = math.radians(rot_deg)  # bearing +t rotates clockwise: (x, y) -> (x cos + y sin, -x sin + y cos)
+    rx, ry = dx * math.cos(t) + dy * math.sin(t), -dx * math.sin(t) + dy * math.cos(t)
+    sxx2, syy2, sxy2 = U.ellipse_covariance(1.0, 0.3, 20.0 + rot_deg, 0.5)
+    assert float(U.p_within_circle(rx, ry, sxx2, syy2, sxy2, 1.2)) == pytest.approx(p0, abs=1e-8)
+
+
+# --- polygon ----------------------------------------------------------------------------------
+
+def test_rectangle_with_axis_aligned_error_is_product_of_normal_cdfs():
+    # Independent normal coordinates: P(rectangle) = [Phi] x [Phi] (textbook; scipy.special.ndtr).
+    sx, sy = 0.4, 0.15
+    dx, dy = 0.2, -0.1
+    xs, ys = [-0.5, 1.0, 1.0, -0.5], [-0.3, -0.3, 0.2, 0.2]
+    exact = (ndtr((1.0 - dx) / sx) - ndtr((-0.5 - dx) / sx)) * (ndtr((0.2 - dy) / sy) - ndtr((-0.3 - dy) / sy))
+    got = float(U.p_within_polygon(dx, dy, sx**2, sy**2, 0.0, xs, ys))
+    assert got == pytest.approx(exact, abs=1e-12)
+    # Clockwise and closed rings give the same answer.
+    got_cw = float(U.p_within_polygon(dx, dy, sx**2, sy**2, 0.0, xs[::-1] + [xs[-1]], ys[::-1] + [ys[-1]]))
+    assert got_cw == pytest.approx(exact, abs=1e-12)
+    # A mean exactly on an edge, and one far outside / deep inside (early exits).
+    for mx, my in [(-0.5, 0.0), (1.0, -0.1), (0.3, 0.2), (5.0, 5.0), (0.25, -0.05)]:
+        ex = (ndtr((1.0 - mx) / sx) - ndtr((-0.5 - mx) / sx)) * (ndtr((0.2 - my) / sy) - ndtr((-0.3 - my) / sy))
+        assert float(U.p_within_polygon(mx, my, sx**2, sy**2, 0.0, xs, ys)) == pytest.approx(ex, abs=1e-12)
+    tiny = 1e-4  # a small error deep inside: early exit to 1
+    assert float(U.p_within_polygon(0.25, -0.05, tiny**2, tiny**2, 0.0, xs, ys)) == 1.0
+
+
+def _concave():
+    # An L-shaped (concave) parcel, km.
+    return np.array([0.0, 2.0, 2.0, 0.8, 0.8, 0.0]), np.array([0.0, 0.0, 0.7, 0.7, 1.6, 1.6])
+
+
+@pytest.mark.parametrize("dx, dy, a, b, br", [(0.5, 0.5, 0.6, 0.2, 30.0), (1.5, 1.2, 0.5, 0.5, 0.0), (-0.4, 0.8, 1.0, 0.1, 100.0), (3.0, 3.0, 0.5, 0.3, 45.0)])
+def test_polygon_vs_dblquad(dx, dy, a, b, br):
+    # scipy dblquad of multivariate_normal.pdf over the L shape (split into two rectangles).
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(a, b, br, 0.5))
+    cov = [[sxx, sxy], [sxy, syy]]
+    ref = _mvn_box_dblquad([dx, dy], cov, 0.0, 2.0, lambda x: 0.0, lambda x: 0.7)
+    ref += _mvn_box_dblquad([dx, dy], cov, 0.0, 0.8, lambda x: 0.7, lambda x: 1.6)
+    xs, ys = _concave()
+    assert float(U.p_within_polygon(dx, dy, sxx, syy, sxy, xs, ys)) == pytest.approx(ref, abs=1e-7)
+
+
+def test_polygon_vs_monte_carlo_and_hole():
+    # Seeded Monte Carlo with shapely point-in-polygon; tolerance 5 binomial SE.
+    import shapely
+
+    rng = np.random.default_rng(11)
+    outer_x, outer_y = np.array([0.0, 3.0, 2.0, -1.0]), np.array([0.0, 0.5, 2.5, 1.5])
+    hole_x, hole_y = np.array([0.8, 1.6, 1.2]), np.array([0.6, 0.8, 1.5])
+    poly = shapely.Polygon(np.column_stack([outer_x, outer_y]), [np.column_stack([hole_x, hole_y])])
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(1.2, 0.5, 60.0, 0.5))
+    n = 300_000
+    pts = rng.multivariate_normal([1.0, 1.0], [[sxx, sxy], [sxy, syy]], size=n)
+    mc = np.mean(shapely.contains_xy(poly, pts[:, 0], pts[:, 1]))
+    got = float(U.p_within_polygon(1.0, 1.0, sxx, syy, sxy, outer_x, outer_y, holes=[(hole_x, hole_y)]))
+    assert abs(got - mc) < 5 * math.sqrt(mc * (1 - mc) / n)
+
+
+def test_polygon_brackets_circle():
+    # A circle lies between its inscribed and circumscribed 720-gons: ties the two methods.
+    sxx, syy, sxy = U.ellipse_covariance(0.8, 0.2, 75.0, 0.5)
+    r = 0.6
+    t = np.linspace(0, 2 * np.pi, 720, endpoint=False)
+    pin = U.p_within_polygon(0.3, 0.4, sxx, syy, sxy, r * np.cos(t), r * np.sin(t))
+    rc = r / math.cos(math.pi / 720)
+    pout = U.p_within_polygon(0.3, 0.4, sxx, syy, sxy, rc * np.cos(t), rc * np.sin(t))
+    pc = U.p_within_circle(0.3, 0.4, sxx, syy, sxy, r)
+    assert float(pin) - 1e-9 <= float(pc) <= float(pout) + 1e-9
+    assert float(pout) - float(pin) < 2e-4
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(-3, 3), st.floats(-3, 3), st.floats(0.05, 2), st.floats(0.02, 1), st.floats(0, 180), st.floats(-0.9, 1.6))
+@example(0.0, 2.0, 1.0, 0.5, 0.5, 0.0)  # a mean on an edge, rotated error: once got wrong
+def test_polygon_additivity(dx, dy, a, ratio, br, cut):
+    # Invariant: a square cut in two (a slanted cut from (cut, -1) to (cut + 0.3, 2)) keeps its probability.
+    sxx, syy, sxy = U.ellipse_covariance(a, a * ratio, br, 0.5)
+    whole = U.p_within_polygon(dx, dy, sxx, syy, sxy, [-1, 2, 2, -1], [-1, -1, 2, 2])
+    left = U.p_within_polygon(dx, dy, sxx, syy, sxy, [-1, cut, cut + 0.3, -1], [-1, -1, 2, 2])
+    right = U.p_within_polygon(dx, dy, sxx, syy, sxy, [cut, 2, 2, cut + 0.3], [-1, -1, 2, 2])
+    assert 0.0 <= float(whole) <= 1.0
+    assert float(left) + float(right) == pytest.approx(float(whole), abs=1e-9)
+
+
+# --- corridor ---------------------------------------------------------------------------------
+
+def test_straight_corridor_far_from_ends_is_one_dimensional():
+    # A long straight segment: P = Phi((w - d)/s_n) - Phi((-w - d)/s_n), s_n^2 = n' S n
+    # (projection of a normal onto the line's normal; textbook).
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(0.6, 0.2, 40.0, 0.5))
+    d = np.array([0.0, 0.1, 0.3, 0.6, 1.0])
+    w = 0.25
+    got = U.p_within_corridor(np.full(5, 3.0), d, sxx, syy, sxy, [-50.0, 50.0], [0.0, 0.0], w)
+    sn = math.sqrt(syy)  # line along x, normal along y
+    exact = ndtr((w - d) / sn) - ndtr((-w - d) / sn)
+    np.testing.assert_allclose(got, exact, atol=1e-10)
+
+
+def test_polyline_corridor_vs_monte_carlo_with_per_stroke_widths():
+    # Seeded Monte Carlo against shapely distance to the polyline; tolerance 5 binomial SE + 3e-4.
+    import shapely
+
+    rng = np.random.default_rng(5)
+    lx, ly = [0.0, 1.0, 1.2, 2.5], [0.0, 0.3, 1.5, 1.6]
+    line = shapely.LineString(np.column_stack([lx, ly]))
+    xs, ys = np.array([1.1, 0.0, 2.6, 1.8]), np.array([0.9, -0.2, 1.8, 0.4])
+    widths = np.array([0.1, 0.2, 0.15, 0.5])
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(0.5, 0.3, 10.0, 0.5))
+    got = U.p_within_corridor(xs, ys, sxx, syy, sxy, lx, ly, widths)
+    n = 100_000
+    for i in range(4):
+        pts = rng.multivariate_normal([xs[i], ys[i]], [[sxx, sxy], [sxy, syy]], size=n)
+        mc = np.mean(shapely.distance(shapely.points(pts), line) <= widths[i])
+        assert abs(got[i] - mc) < 5 * math.sqrt(mc * (1 - mc) / n) + 3e-4
+
+
+def test_adaptive_round_ends_miss_less_than_1e5():
+    # Fewer cap segments where the error is wide compared with the corridor: against the
+    # 256-segment buffer (shapely) the probability differs by < 1e-5 (the bound of the docstring).
+    import shapely
+
+    rng = np.random.default_rng(4)
+    lx, ly = np.array([0.0, 1.0, 1.5]), np.array([0.0, 0.2, 1.0])
+    n = 200
+    x, y = rng.uniform(-0.5, 2.0, n), rng.uniform(-0.5, 1.5, n)
+    a = rng.uniform(0.05, 0.8, n)
+    sxx, syy, sxy = U.ellipse_covariance(a, a * rng.uniform(0.2, 1.0, n), rng.uniform(0, 180, n), 0.5)
+    w = rng.uniform(0.01, 0.3, n)
+    got = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w)
+    q = U._corridor_quad_segs(w, *U.principal_axes(sxx, syy, sxy)[:2], 3)
+    fewer = q < U.CORRIDOR_QUAD_SEGS
+    assert fewer.sum() > 10
+    line = shapely.LineString(np.column_stack([lx, ly]))
+    ref = np.array([U.p_within_polygon(x[i], y[i], sxx[i], syy[i], sxy[i],
+                                       *np.asarray(line.buffer(w[i], quad_segs=512).exterior.coords).T) for i in range(n)])
+    err = np.abs(got - ref)
+    assert err[fewer].max() < 1e-5  # the bound of _corridor_quad_segs
+    assert err.max() < 1e-4  # the stated accuracy where the cap binds
+
+
+def test_corridor_bad_input():
+    with pytest.raises(InputError):
+        U.p_within_corridor([0.0], [0.0], 1.0, 1.0, 0.0, [0.0], [0.0], 1.0)
+    with pytest.raises(InputError):
+        U.p_within_corridor([0.0], [0.0], 1.0, 1.0, 0.0, [0.0, 1.0], [0.0, 0.0], 0.0)
+
+
+# --- filling missing ellipses -----------------------------------------------------------------
+
+def test_missing_ellipses_need_a_default():
+    strokes = pd.DataFrame({
+        "semi_major_km": [0.5, np.nan, 0.3], "semi_minor_km": [0.25, np.nan, 0.3],
+        "major_bearing_deg": [30.0, np.nan, np.nan],
+    })
+    with pytest.raises(InputError, match="default_uncertainty_km"):
+        U.stroke_covariance(strokes)
+    sxx, syy, sxy, filled = U.stroke_covariance(strokes, default_uncertainty_km=0.4)
+    assert filled.tolist() == [False, True, False]  # a circle needs no bearing
+    k = U.sigma_scale(0.5)
+    assert sxx[1] == pytest.approx((0.4 / k) ** 2) and sxy[1] == 0.0
+    assert sxx[0] == pytest.approx(0.078897, abs=1e-6)  # REFERENCES.md section 2 check case
+
+
+def test_reach_bound_holds():
+    # P(|e| > reach) <= tail for a 2-D normal (chi-square 2 df bound); checked with ncx2 (circular, worst case).
+    sxx, syy, sxy = U.ellipse_covariance(1.0, 1.0, 0.0, 0.5)
+    t = float(U.reach_km(sxx, syy, sxy, 1e-6))
+    s = math.sqrt(float(sxx))
+    assert stats.chi2.sf((t / s) ** 2, 2) == pytest.approx(1e-6, rel=1e-9)
