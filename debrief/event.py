@@ -34,6 +34,10 @@ class Event:
         The analysis window (UTC): event.toml's ``start``/``end`` or the data's extent.
     inputs : list of dict
         ``{"role", "path", "sha256", "rows"}`` for every input file read.
+    sites, crew_log, lines, outages : DataFrame or None
+        The optional inputs of the folder, read by their readers when the files exist.
+    problems : list of (role, problem)
+        Rows those readers could not use (each problem names its line or feature).
     """
 
     config: EventConfig
@@ -43,6 +47,11 @@ class Event:
     start: pd.Timestamp
     end: pd.Timestamp
     inputs: list = field(default_factory=list)
+    sites: pd.DataFrame | None = None
+    crew_log: pd.DataFrame | None = None
+    lines: pd.DataFrame | None = None
+    outages: pd.DataFrame | None = None
+    problems: list = field(default_factory=list)
     extras: dict = field(default_factory=dict)
 
     @property
@@ -65,7 +74,53 @@ def sha256_of(path: Path) -> str:
     return h.hexdigest()
 
 
-def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False, config: EventConfig | None = None) -> Event:
+def _input(role: str, path: Path, rows: int) -> dict:
+    return {"role": role, "path": str(path), "sha256": sha256_of(path), "rows": int(rows)}
+
+
+def load_optional_inputs(event: Event, *, sites_path=None) -> Event:
+    """Read the folder's optional files (sites, crew log, lines, outages) into `event`.
+
+    A file that is absent leaves its attribute None. A file that cannot be read at all is an
+    InputError naming it; rows a reader rejects go to ``event.problems``.
+
+    Parameters
+    ----------
+    sites_path : path, optional
+        A sites file to use instead of the event's own (``debrief report --sites``).
+    """
+    from .io.lines import read_lines, read_outages
+    from .io.sites import read_crew_log, read_sites
+
+    cfg = event.config
+    tz = cfg.time_zone
+    path = Path(sites_path) if sites_path else cfg.path("sites")
+    if sites_path and not path.is_file():
+        raise InputError(f"sites file not found: {path}")
+    if path.is_file():
+        event.sites, probs = read_sites(path, time_zone=tz)
+        event.problems.extend(("sites", p) for p in probs)
+        event.inputs.append(_input("sites", path, len(event.sites) + len(probs)))
+    path = cfg.path("crew_log")
+    if path.is_file():
+        event.crew_log, probs = read_crew_log(path, time_zone=tz)
+        event.problems.extend(("crew log", p) for p in probs)
+        event.inputs.append(_input("crew log", path, len(event.crew_log) + len(probs)))
+    path = cfg.path("lines")
+    if path.is_file():
+        event.lines, probs = read_lines(path, config=cfg)
+        event.problems.extend(("lines", p) for p in probs)
+        event.inputs.append(_input("lines", path, len(event.lines) + len(probs)))
+    path = cfg.path("outages")
+    if path.is_file() and event.lines is not None:
+        event.outages, probs = read_outages(path, tz=tz, line_ids=event.lines["line_id"])
+        event.problems.extend(("outages", p) for p in probs)
+        event.inputs.append(_input("outages", path, len(event.outages)))
+    return event
+
+
+def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False, config: EventConfig | None = None,
+               optional: bool = True, sites_path=None) -> Event:
     """Load an event folder: read strokes, group flashes, flag continuing-current suspects.
 
     Parameters
@@ -78,6 +133,10 @@ def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False
         Any rejected stroke row is fatal.
     config : EventConfig, optional
         Already-loaded settings (then `event_dir` and `overrides` are not read again).
+    optional : bool
+        Also read the folder's sites, crew log, lines and outages when present.
+    sites_path : path, optional
+        A sites file to use instead of the folder's own.
     """
     from .continuing_current import flag_continuing_current
     from .flashes import group_flashes
@@ -97,5 +156,6 @@ def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False
     end = parse_user_time(cfg.get("end"), tz, what="event.toml end") if cfg.get("end") else grouped["time"].max()
     if end < start:
         raise InputError(f"event {cfg.name!r}: end ({end}) is before start ({start})")
-    inputs = [{"role": "strokes", "path": str(path), "sha256": sha256_of(path), "rows": int(ledger.rows_read)}]
-    return Event(config=cfg, strokes=grouped, flashes=flashes, ledger=ledger, start=start, end=end, inputs=inputs)
+    event = Event(config=cfg, strokes=grouped, flashes=flashes, ledger=ledger, start=start, end=end,
+                  inputs=[_input("strokes", path, ledger.rows_read)])
+    return load_optional_inputs(event, sites_path=sites_path) if optional else event

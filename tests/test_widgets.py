@@ -26,7 +26,7 @@ with warnings.catch_warnings():  # bqscales sets trait metadata the pre-4.1 trai
 
 from debrief.config import from_dict
 from debrief.continuing_current import flag_continuing_current
-from debrief.event import Event
+from debrief.event import Event, load_optional_inputs
 from debrief.flashes import group_flashes, select_window
 from debrief.geodesy import LocalPlane
 from debrief.polarity import multiplicity_table
@@ -265,6 +265,7 @@ def test_map_draws_sites_and_lines_from_the_folder(tmp_path, event):
     (tmp_path / "lines.geojson").write_text(json.dumps(line), encoding="utf-8")
     cfg = from_dict({"name": "x"}, event_dir=tmp_path)
     ev = Event(config=cfg, strokes=event.strokes, flashes=event.flashes, ledger=None, start=event.start, end=event.end)
+    load_optional_inputs(ev)  # what load_event does for a folder
     m = StrokeMap(ExploreState(ev))
     assert m.lines_layer.data["features"][0]["geometry"]["coordinates"] == [[-93.3, 45.4], [-93.1, 45.6]]
     ring = [f for f in m.sites_layer.data["features"] if f["geometry"]["type"] == "LineString"][0]
@@ -528,6 +529,7 @@ def test_site_panel_shows_core_result_and_focuses_map(tmp_path):
     strokes, flashes = group_flashes(raw, cfg)
     ev = Event(config=cfg, strokes=strokes, flashes=flag_continuing_current(strokes, flashes, cfg), ledger=None,
                start=strokes["time"].min(), end=strokes["time"].max())
+    load_optional_inputs(ev)  # what load_event does for a folder
     st_ = ExploreState(ev)
     m = StrokeMap(st_, near_ellipses=0)
     panel = SitePanel(st_)

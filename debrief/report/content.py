@@ -27,7 +27,6 @@ from .. import __version__
 PARAMS_ENV = "DEBRIEF_REPORT_PARAMS"
 
 #: File name of the crew log in an event folder (``site, stopped, resumed``), optional.
-CREW_LOG_NAME = "crew_log.csv"
 
 #: Parameters a template understands, with their defaults (all plain JSON data).
 DEFAULT_PARAMS = {
@@ -184,63 +183,21 @@ def load_report_data(params: dict) -> ReportData:
     Uses :func:`debrief.event.load_event` (the same loader as the CLI and the widgets) and the
     readers of :mod:`debrief.io`; a file that is absent leaves its section out.
     """
-    from ..event import load_event, sha256_of
+    from ..event import load_event
     from ..timeutil import parse_user_time
 
     overrides = {"time_zone": params.get("tz")} if params.get("tz") else None
-    event = load_event(params["event_dir"], overrides=overrides)
+    event = load_event(params["event_dir"], overrides=overrides, sites_path=params.get("sites"))
     cfg = event.config
     tz = cfg.time_zone
     start = parse_user_time(params["start"], tz, what="start") if params.get("start") else event.start
     end = parse_user_time(params["end"], tz, what="end") if params.get("end") else event.end
     strokes, flashes = event.window(start, end)
-    data = ReportData(params=params, event=event, start=start, end=end, strokes=strokes, flashes=flashes, tz=tz,
-                      inputs=list(event.inputs))
-    extras = getattr(event, "extras", {}) or {}
-
     sites_path = Path(params["sites"]) if params.get("sites") else cfg.path("sites")
-    if extras.get("sites") is not None and not params.get("sites"):
-        data.sites = extras["sites"]
-    elif sites_path.is_file() and _has_module("debrief.io.sites"):
-        from ..io import sites as io_sites
-
-        result = io_sites.read_sites(sites_path, time_zone=tz)
-        data.sites, probs = result if isinstance(result, tuple) else (result, [])
-        data.problems.extend(("sites", p) for p in probs)
-        data.inputs.append({"role": "sites", "path": str(sites_path), "sha256": sha256_of(sites_path),
-                            "rows": int(len(data.sites) + len(probs))})
-    data.sites_path = sites_path if data.sites is not None else None
-    # The crew log has no event.toml key yet: it is read from crew_log.csv beside the sites.
-    crew_path = (cfg.event_dir / CREW_LOG_NAME) if cfg.event_dir is not None else None
-    if extras.get("crew_log") is not None:
-        data.crew_log = extras["crew_log"]
-    elif data.sites is not None and crew_path is not None and crew_path.is_file() and _has_module("debrief.io.sites"):
-        from ..io import sites as io_sites
-
-        data.crew_log, probs = io_sites.read_crew_log(crew_path, time_zone=tz)
-        data.problems.extend(("crew log", p) for p in probs)
-        data.inputs.append({"role": "crew log", "path": str(crew_path), "sha256": sha256_of(crew_path),
-                            "rows": int(len(data.crew_log) + len(probs))})
-
-    lines_path, outages_path = cfg.path("lines"), cfg.path("outages")
-    if extras.get("lines") is not None:
-        data.lines = extras["lines"]
-    elif lines_path.is_file() and _has_module("debrief.io.lines"):
-        from ..io import lines as io_lines
-
-        data.lines, probs = io_lines.read_lines(lines_path, config=cfg)
-        data.problems.extend(("lines", p) for p in probs)
-        data.inputs.append({"role": "lines", "path": str(lines_path), "sha256": sha256_of(lines_path),
-                            "rows": int(len(data.lines) + len(probs))})
-    if extras.get("outages") is not None:
-        data.outages = extras["outages"]
-    elif data.lines is not None and outages_path.is_file() and _has_module("debrief.io.lines"):
-        from ..io import lines as io_lines
-
-        data.outages, probs = io_lines.read_outages(outages_path, tz=tz, line_ids=data.lines["line_id"])
-        data.problems.extend(("outages", p) for p in probs)
-        data.inputs.append({"role": "outages", "path": str(outages_path), "sha256": sha256_of(outages_path),
-                            "rows": int(len(data.outages))})
+    data = ReportData(params=params, event=event, start=start, end=end, strokes=strokes, flashes=flashes, tz=tz,
+                      sites=event.sites, sites_path=sites_path if event.sites is not None else None,
+                      lines=event.lines, outages=event.outages, crew_log=event.crew_log,
+                      problems=list(event.problems), inputs=list(event.inputs))
     return data
 
 

@@ -188,24 +188,17 @@ _SITE_COLUMNS = ("name", "latitude", "longitude", "radius_km")
 def load_sites(event) -> pd.DataFrame:
     """The event's sites (``name``, ``latitude``, ``longitude``, ``radius_km``, ...), maybe empty.
 
-    Read once through the sites reader and kept in ``event.extras["sites"]``. A sites file the
-    reader rejects is left off the map (the CLI and report show the reader's message).
+    Taken from ``event.sites`` (read once by :func:`debrief.event.load_event`) and kept, prepared
+    for drawing, in ``event.extras["sites"]``.
     """
     extras = getattr(event, "extras", None)
     if isinstance(extras, dict) and isinstance(extras.get("sites"), pd.DataFrame):
         return extras["sites"]
     empty = pd.DataFrame({c: pd.Series(dtype=object if c == "name" else float) for c in _SITE_COLUMNS})
-    path = event.config.path("sites")
     table = empty
-    if path.exists():
-        from ..errors import InputError
-        from ..io.sites import read_sites
-
-        try:
-            table, _problems = read_sites(path, time_zone=event.config.time_zone)
-        except InputError:  # the CLI and the report show the reader's message
-            table = empty
-        table = table.copy()
+    sites = getattr(event, "sites", None)  # read by debrief.event.load_event with the sites reader
+    if isinstance(sites, pd.DataFrame):
+        table = sites.copy()
         if "stop_km" in table.columns:  # a crew site's ring is its stop radius
             table["radius_km"] = table["radius_km"].fillna(table["stop_km"])
         table["name"] = table["name"].astype(str)
