@@ -34,7 +34,7 @@ ROOT = Path(__file__).resolve().parents[1]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from debrief.cli.flashes import iso_utc_array  # noqa: E402
+from debrief.timeutil import iso_utc_many  # noqa: E402
 from debrief.flashes import group_flashes, group_flashes_reference  # noqa: E402
 
 
@@ -163,7 +163,7 @@ def main(argv=None) -> int:
         if not a.skip_cli:
             src = Path(tmp) / "strokes.csv"
             text = strokes.copy()
-            text["time"] = iso_utc_array(text["time"])
+            text["time"] = iso_utc_many(text["time"])
             text.to_csv(src, index=False)
             env = dict(os.environ, PYTHONPATH=str(ROOT))
             t_cli = run_time([sys.executable, "-m", "debrief", "flashes", str(src), "--out", f"{tmp}/f.csv",

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+import numpy as np
 import pandas as pd
 
 from .errors import InputError
@@ -62,6 +63,36 @@ def iso_utc(ts) -> str:
     if t.microsecond or t.nanosecond:
         return t.strftime("%Y-%m-%dT%H:%M:%S.%f").rstrip("0").rstrip(".") + "Z"
     return t.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def iso_utc_many(times) -> np.ndarray:
+    """ISO 8601 UTC text with ``Z`` for many times at once.
+
+    Same text as :func:`iso_utc` (whole seconds without a fraction, trailing
+    zeros of the fraction dropped) except that nanoseconds are kept rather than cut; NaT gives
+    an empty string. About a second per ten million times, against minutes for ``strftime``.
+    """
+    s = pd.Series(times)
+    if isinstance(s.dtype, pd.DatetimeTZDtype):
+        s = s.dt.tz_convert("UTC").dt.tz_localize(None)
+    ns = s.dt.as_unit("ns").to_numpy(dtype="datetime64[ns]")
+    n = len(ns)
+    if n == 0:
+        return np.zeros(0, dtype=object)
+    nat = np.isnat(ns)
+    # 'YYYY-MM-DDTHH:MM:SS.fffffffff': 29 characters, as datetime64[ns] spans only 1677-2262
+    text = np.datetime_as_string(np.where(nat, np.datetime64(0, "ns"), ns), unit="ns")
+    frac = np.where(nat, 0, ns.view(np.int64) % 1_000_000_000)
+    digits = np.full(n, 9, dtype=np.int64)
+    for k in range(1, 9):  # drop trailing zeros of the fraction
+        digits -= frac % 10**k == 0
+    cut = np.where(frac == 0, 19, 20 + digits)
+    b = text.astype("S30").view(np.uint8).reshape(n, 30)
+    b[np.arange(n), cut] = ord("Z")
+    b[np.arange(30)[None, :] > cut[:, None]] = 0  # NUL padding is dropped by numpy's bytes type
+    out = b.reshape(-1).view("S30").astype(str).astype(object)
+    out[nat] = ""
+    return out
 
 
 def format_times(ts, tz: str | None) -> str:

@@ -150,7 +150,7 @@ def test_user_mistakes_exit_2_with_one_line(strokes_csv, tmp_path, args, words):
 
 
 def test_iso_times_match_the_single_time_formatter():
-    from debrief.cli.flashes import iso_utc_array
+    from debrief.timeutil import iso_utc_many as iso_utc_array
     from debrief.timeutil import iso_utc
 
     rng = np.random.default_rng(5)

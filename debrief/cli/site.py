@@ -16,7 +16,7 @@ import pandas as pd
 from ..config import with_overrides
 from ..errors import InputError
 from ..io.atomic import write_csv_atomic, write_text_atomic
-from ..timeutil import format_times, iso_utc
+from ..timeutil import format_times, iso_utc, iso_utc_many
 from .common import add_stroke_options, config_from_args, load_strokes, window_from_args
 
 CANDIDATE_COLUMNS = (
@@ -129,7 +129,7 @@ def _iso_frame(frame: pd.DataFrame) -> pd.DataFrame:
     out = frame.copy()
     for c in out.columns:
         if isinstance(out[c].dtype, pd.DatetimeTZDtype):
-            out[c] = [iso_utc(t) if not pd.isna(t) else "" for t in out[c]]
+            out[c] = iso_utc_many(out[c])
     return out
 
 
