@@ -26,7 +26,7 @@ test: $(STAMP_TEST)
 	$(PY) -m pytest
 
 lab: $(STAMP_TEST)
-	$(VENV)/bin/jupyter lab templates/explore.ipynb
+	$(VENV)/bin/jupyter lab $(if $(filter 0,$(shell id -u)),--allow-root) templates/explore.ipynb
 
 bench: $(STAMP_TEST)
 	$(PY) benchmarks/run_all.py
