@@ -31,6 +31,8 @@ from matplotlib import patheffects
 from matplotlib.colors import LinearSegmentedColormap
 from matplotlib.figure import Figure
 from matplotlib.patches import Circle, Ellipse, FancyArrow
+from matplotlib.scale import SymmetricalLogTransform
+from matplotlib.ticker import FuncFormatter, NullLocator
 
 from . import palette
 from .geodesy import LocalPlane
@@ -41,6 +43,10 @@ SVG_HASH_SALT = "debrief"
 MAP_SIZE_IN = (7.5, 6.6)
 WIDE_SIZE_IN = (7.5, 3.2)
 SITE_MAP_SIZE_IN = (6.6, 4.6)
+#: The per-outage map and timeline, shown side by side in the report: legend below the axes.
+OUTAGE_SIZE_IN = (5.0, 5.8)
+#: The outage timeline's axis is linear within this many seconds of the trip, logarithmic beyond.
+TIMELINE_LINEAR_S = 1.0
 
 #: Above this many markers in one layer, the layer is rasterised (an image inside the SVG).
 RASTER_ABOVE = 1500
@@ -531,9 +537,32 @@ def periods_timeline(periods: pd.DataFrame, start, end, *, label_col: str = "sit
     return fig
 
 
+def _legend_below(fig):
+    """The figure's legend in two columns under the axes (figures shown two to a row)."""
+    fig.legend(loc="upper left", bbox_to_anchor=(0.06, 0.165), ncol=2, frameon=False, fontsize=7.5,
+               columnspacing=1.2, handlelength=1.8)
+
+
+def _nearest_on_paths(paths_xy, x0: float, y0: float):
+    """The point of the drawn line (plane km) nearest to (x0, y0), or None without a line."""
+    import shapely
+
+    parts = [shapely.LineString(np.column_stack([px, py])) for px, py in paths_xy if len(px) >= 2]
+    parts += [shapely.Point(px[0], py[0]) for px, py in paths_xy if len(px) == 1]
+    if not parts:
+        return None
+    foot = shapely.shortest_line(shapely.GeometryCollection(parts), shapely.Point(x0, y0)).coords[0]
+    return float(foot[0]), float(foot[1])
+
+
 def outage_map(line_geometry, candidates: pd.DataFrame, *, centre_deg=None, fault_deg=None, half_km: float | None = None,
-               title: str | None = None, max_ellipses: int = 100) -> Figure:
+               title: str | None = None, max_ellipses: int = 100, min_half_km: float = 1.0) -> Figure:
     """Zoomed map about an outage: the line, the candidate strokes and their error ellipses.
+
+    The view holds every candidate and its error ellipse, the point of the line
+    nearest to the best candidate (joined to it by a dotted segment, labelled with the
+    candidate's ``distance_m`` when given) and the logged fault location, so the line is on the
+    map however far from it the stroke was reported.
 
     Parameters
     ----------
@@ -541,16 +570,20 @@ def outage_map(line_geometry, candidates: pd.DataFrame, *, centre_deg=None, faul
         The line in longitude/latitude (see :func:`line_paths`).
     candidates : DataFrame
         Candidate strokes (``latitude``, ``longitude``, ``peak_current_ka``, ``type``; ellipse
-        columns drawn where present), best first: the first is outlined.
+        columns drawn where present; ``distance_m`` from :func:`debrief.outages.match_outages`
+        labelled where present), best first: the first is outlined.
     centre_deg : (lat, lon), optional
         Plane centre (default: the best candidate, else the line's first vertex).
     fault_deg : (lat, lon), optional
         Logged fault location, drawn as a cross.
     half_km : float, optional
-        Half-width of the view (default: enough for every candidate, at least 1 km).
+        Half-width of a square view about the plane centre, km; default: the smallest square
+        (padded by a fifth) holding what is listed above, at least `min_half_km`.
+    min_half_km : float
+        Smallest half-width of the default view, km.
     """
-    fig = _figure(SITE_MAP_SIZE_IN)
-    ax = fig.add_axes([0.115, 0.11, 0.54, 0.80])
+    fig = _figure(OUTAGE_SIZE_IN)
+    ax = fig.add_axes([0.14, 0.27, 0.80, 0.66])
     paths = line_paths([line_geometry])
     n = len(candidates)
     if centre_deg is None:
@@ -564,13 +597,14 @@ def outage_map(line_geometry, candidates: pd.DataFrame, *, centre_deg=None, faul
     x, y = (plane.to_xy_km(candidates["latitude"].to_numpy(float), candidates["longitude"].to_numpy(float))
             if n else (np.array([]), np.array([])))
     x, y = np.atleast_1d(x), np.atleast_1d(y)
-    if half_km is None:
-        half_km = max(1.0, float(np.nanmax(np.hypot(x, y))) * 1.2 if n else 1.0)
+    paths_xy = []
     for p in paths:
         px, py = plane.to_xy_km(p[:, 1], p[:, 0])
+        paths_xy.append((np.atleast_1d(px), np.atleast_1d(py)))
         ax.plot(px, py, color=palette.LINE, linewidth=1.6, zorder=3)
     ax.plot([], [], color=palette.LINE, linewidth=1.6, label="line")
-    if n and {"semi_major_km", "semi_minor_km", "major_bearing_deg"} <= set(candidates.columns):
+    has_ellipse = n and {"semi_major_km", "semi_minor_km", "major_bearing_deg"} <= set(candidates.columns)
+    if has_ellipse:
         a = candidates["semi_major_km"].to_numpy(float)
         b = candidates["semi_minor_km"].to_numpy(float)
         br = candidates["major_bearing_deg"].to_numpy(float)
@@ -578,6 +612,16 @@ def outage_map(line_geometry, candidates: pd.DataFrame, *, centre_deg=None, faul
             ax.add_patch(Ellipse(**ellipse_patch_params(x[i], y[i], a[i], b[i], br[i]), fill=False,
                                  edgecolor=palette.ELLIPSE, linewidth=0.8, zorder=2))
         ax.plot([], [], color=palette.ELLIPSE, linewidth=0.8, label="error ellipse")
+    foot = _nearest_on_paths(paths_xy, float(x[0]), float(y[0])) if n else None
+    if foot is not None and math.hypot(foot[0] - x[0], foot[1] - y[0]) > 1e-9:
+        ax.plot([x[0], foot[0]], [y[0], foot[1]], color=palette.LINE, linewidth=1.0, linestyle=":", zorder=3,
+                label="shortest way to the line")
+        if "distance_m" in candidates and np.isfinite(float(candidates["distance_m"].iloc[0])):
+            d_m = float(candidates["distance_m"].iloc[0])
+            ax.annotate(f"{d_m:,.0f} m" if d_m < 10000 else f"{d_m / 1000:,.1f} km",
+                        ((x[0] + foot[0]) / 2, (y[0] + foot[1]) / 2), xytext=(4, 4), textcoords="offset points",
+                        fontsize=7, color=palette.LINE, zorder=6,
+                        path_effects=[patheffects.withStroke(linewidth=2.5, foreground=palette.BACKGROUND)])
     if n:
         pol = _polarity(candidates["peak_current_ka"])
         stype = candidates["type"].astype(str).to_numpy()
@@ -588,13 +632,161 @@ def outage_map(line_geometry, candidates: pd.DataFrame, *, centre_deg=None, faul
                            color=palette.stroke_colour(t, p), linewidths=1.5, zorder=4, label=f"{label} ({int(m.sum())})")
         ax.scatter(x[:1], y[:1], s=160, facecolors="none", edgecolors=palette.LINE, linewidths=1.0, zorder=5,
                    label="best candidate")
+    fault_xy = None
     if fault_deg is not None and all(np.isfinite(fault_deg)):
         fx, fy = plane.to_xy_km(fault_deg[0], fault_deg[1])
+        fault_xy = (float(fx), float(fy))
         ax.scatter([fx], [fy], marker="x", s=50, color=palette.SITE, linewidths=1.5, zorder=5, label="logged fault location")
-    _map_decorations(ax, (-half_km, half_km), (-half_km, half_km))
+    if half_km is not None:
+        xlim, ylim = (-half_km, half_km), (-half_km, half_km)
+    else:
+        kx, ky = [x], [y]
+        if has_ellipse:  # the ellipses drawn, by their semi-major axes
+            r = candidates["semi_major_km"].to_numpy(float)[:max_ellipses]
+            kx += [x[:len(r)] - r, x[:len(r)] + r]
+            ky += [y[:len(r)] - r, y[:len(r)] + r]
+        for pt in (foot, fault_xy):
+            if pt is not None:
+                kx.append(np.array([pt[0]])); ky.append(np.array([pt[1]]))
+        xlim, ylim = _extent(kx, ky, pad_frac=0.2, min_half_km=min_half_km)
+    _map_decorations(ax, xlim, ylim)
     ax.set_xlabel("km east of the best candidate" if n else "km east")
     ax.set_ylabel("km north of the best candidate" if n else "km north")
     if title:
         ax.set_title(title, loc="left", fontsize=9)
-    fig.legend(loc="upper left", bbox_to_anchor=(0.66, 0.92), frameon=False, fontsize=7)
+    _legend_below(fig)
+    return fig
+
+
+def _operation_offsets_s(outage_row) -> np.ndarray:
+    """Seconds from the logged trip to each later operation (``reclose_times``), in order."""
+    t0 = pd.Timestamp(outage_row["time"])
+    ops = outage_row.get("reclose_times") if hasattr(outage_row, "get") else None
+    if ops is None or (not isinstance(ops, (tuple, list, np.ndarray, pd.Index)) and pd.isna(ops)):
+        ops = ()
+    return np.sort(np.array([(pd.Timestamp(t) - t0).total_seconds() for t in ops], dtype=float))
+
+
+def outage_timeline(outage_row, candidates: pd.DataFrame, *, tolerance_s: float, tz: str | None = None,
+                    title: str | None = None) -> Figure:
+    """Timeline of one outage: the candidate strokes as stems against the trip and reclose times.
+
+    The x axis is seconds from the logged trip (the candidates' ``dt_s``), linear within
+    :data:`TIMELINE_LINEAR_S` of the trip and logarithmic beyond (matplotlib's ``symlog``), so
+    strokes a tenth of a second apart near the trip and a reclose many seconds later both show.
+    The trip is a solid vertical line at 0 and each later operation a dashed one, numbered as in
+    the candidates' ``operation`` column (0 the trip). The shaded span is the time window in which
+    strokes were candidates: from the trip minus the clock tolerance to the last operation plus
+    it. Each stem is
+    as tall as the stroke's |peak current| and coloured by polarity and type; the best candidate
+    (``rank`` 1) is circled and labelled with its ``p_within_corridor``.
+
+    Parameters
+    ----------
+    outage_row : mapping
+        ``time`` (the logged trip, UTC Timestamp) and optionally ``reclose_times`` (UTC
+        Timestamps of the later operations), ``outage_id``, ``line_id``; a row of
+        :func:`debrief.io.lines.read_outages`.
+    candidates : DataFrame
+        This outage's candidates from :func:`debrief.outages.match_outages`: ``dt_s`` (s after
+        the trip), ``peak_current_ka``, ``type``, and optionally ``rank`` (1 = best; default the
+        first row) and ``p_within_corridor``.
+    tolerance_s : float
+        The clock tolerance the match used, s.
+    tz : str, optional
+        Display zone: the trip's local time is given beside UTC.
+    title : str, optional
+        Default: the outage and line ids.
+
+    Returns
+    -------
+    Figure
+    """
+    from .timeutil import zone
+
+    fig = _figure(OUTAGE_SIZE_IN)
+    ax = fig.add_axes([0.14, 0.27, 0.80, 0.58])
+    t0 = pd.Timestamp(outage_row["time"]).tz_convert("UTC")
+    ops_s = _operation_offsets_s(outage_row)
+    tol = float(tolerance_s)
+    lo, hi = -tol, (float(ops_s.max()) if len(ops_s) else 0.0) + tol
+    n = len(candidates)
+    dt = candidates["dt_s"].to_numpy(float) if n else np.zeros(0)
+    h = np.abs(candidates["peak_current_ka"].to_numpy(float)) if n else np.zeros(0)
+    span_lo = min(lo, float(dt.min()) if n else lo)
+    span_hi = max(hi, float(dt.max()) if n else hi)
+    # Linear within ±1 s of the trip, logarithmic beyond: a stroke 0.1 s before the trip and a
+    # reclose 0.5 s after it stay apart on the same axis as a reclose 15 s later.
+    scale = SymmetricalLogTransform(10, TIMELINE_LINEAR_S, 1.0)
+    a, b = scale.transform(np.array([span_lo, span_hi], dtype=float))
+    w = max(b - a, 0.5)
+    xlim = tuple(float(v) for v in scale.inverted().transform(np.array([a - 0.06 * w, b + 0.06 * w])))
+    ax.set_xscale("symlog", linthresh=TIMELINE_LINEAR_S, linscale=1.0)
+    ax.set_xlim(*xlim)
+
+    def frac(v):
+        return (scale.transform(np.atleast_1d(float(v)))[0] - scale.transform(np.atleast_1d(xlim[0]))[0]) / \
+            (scale.transform(np.atleast_1d(xlim[1]))[0] - scale.transform(np.atleast_1d(xlim[0]))[0])
+    top = max(float(h.max()) if n else 0.0, 1.0) * 1.3
+    ax.axvspan(lo, hi, color=palette.GRID, alpha=0.6, linewidth=0, zorder=0, gid="candidate-window",
+               label=f"candidate window\n(±{tol:g} s clock tolerance)")
+    ax.axvline(0.0, color=palette.LINE, linewidth=1.6, zorder=2, gid="trip", label="logged trip (operation 0)")
+    for k, off in enumerate(ops_s, start=1):
+        ax.axvline(off, color=palette.LINE, linewidth=1.0, linestyle="--", zorder=2, gid=f"operation-{k}",
+                   label="later operations (reclosing)" if k == 1 else None)
+    # Operation numbers along the top; numbers closer than 4 % of the axis are written together.
+    groups = []
+    for k, off in enumerate(np.concatenate([[0.0], ops_s])):
+        if groups and frac(off) - frac(groups[-1][1]) < 0.035:
+            groups[-1][0].append(k)
+        else:
+            groups.append([[k], off])
+    for ks, off in groups:
+        ax.text(off, 1.01, ",".join(str(k) for k in ks), transform=ax.get_xaxis_transform(), ha="center",
+                va="bottom", fontsize=7, color=palette.LINE)
+    if n:
+        stype = candidates["type"].astype(str).to_numpy() if "type" in candidates else np.full(n, "CG")
+        pol = _polarity(candidates["peak_current_ka"])
+        colours = [palette.stroke_colour(t if t in ("CG", "IC") else "CG", p) for t, p in zip(stype, pol)]
+        ax.vlines(dt, 0.0, h, colors=colours, linewidth=1.3, zorder=3, gid="candidate-stems")
+        ax.scatter(dt, h, s=18, c=colours, zorder=4, gid="candidate-heads")
+        for (t, p), label in palette.STROKE_LABELS.items():
+            m = (stype == t) & (pol == p)
+            if m.any():
+                ax.scatter([], [], s=18, color=palette.stroke_colour(t, p), label=f"{label} ({int(m.sum())})")
+        ranks = candidates["rank"].to_numpy() if "rank" in candidates else np.arange(1, n + 1)
+        b = int(np.flatnonzero(ranks == ranks.min())[0])
+        ax.scatter([dt[b]], [h[b]], s=150, facecolors="none", edgecolors=palette.LINE, linewidths=1.0, zorder=5,
+                   gid="best-candidate", label="best candidate")
+        text = f"best: {float(candidates['peak_current_ka'].iloc[b]):+.0f} kA, {dt[b]:+.2f} s"
+        if "p_within_corridor" in candidates:
+            text += f"\nP(in corridor) {float(candidates['p_within_corridor'].iloc[b]):.2f}"
+        right = frac(dt[b]) > 0.5
+        ax.annotate(text, (dt[b], h[b]), xytext=(-9 if right else 9, 2), textcoords="offset points",
+                    ha="right" if right else "left", va="bottom", fontsize=7, color=palette.LINE, zorder=6,
+                    path_effects=[patheffects.withStroke(linewidth=2.5, foreground=palette.BACKGROUND)])
+    else:
+        ax.text(0.5, 0.5, "no candidate stroke", transform=ax.transAxes, ha="center", va="center", color=palette.LINE)
+    ax.axhline(0.0, color=palette.LINE, linewidth=0.8, zorder=2)
+    ax.set_ylim(0.0, top)
+    steps = np.array([0.5, 1, 10, 100, 1000, 10000])
+    ticks = np.concatenate([-steps[::-1], [0.0], steps])
+    ax.set_xticks(ticks[(ticks >= xlim[0]) & (ticks <= xlim[1])])
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}".replace("-", "\u2212")))
+    ax.xaxis.set_minor_locator(NullLocator())
+    ax.set_xlim(*xlim)
+    ax.grid(True, color=palette.GRID, linewidth=0.6, zorder=0)
+    ax.set_axisbelow(True)
+    ax.set_ylabel("|peak current| of the candidate stroke, kA")
+    ax.set_xlabel(f"s from the logged trip (linear to ±{TIMELINE_LINEAR_S:g} s, then logarithmic)")
+    when = "trip at " + t0.strftime("%Y-%m-%d %H:%M:%S.%f")[:-3] + " UTC"
+    z = zone(tz) if tz else None
+    if z is not None and tz != "UTC":
+        lt = t0.tz_convert(z)
+        when += f" ({lt.strftime('%H:%M:%S.%f')[:-3]} {lt.strftime('%Z')})"
+    if title is None:
+        oid, lid = outage_row.get("outage_id", ""), outage_row.get("line_id", "")
+        title = f"{oid} on {lid}" if oid or lid else ""
+    ax.set_title(f"{title}\n{when}" if title else when, loc="left", fontsize=9, pad=12)
+    _legend_below(fig)
     return fig

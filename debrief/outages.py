@@ -734,28 +734,69 @@ def _num(v):
     return None if not np.isfinite(v) else round(v, 6)
 
 
+def _polygon_lonlat(geo: _LineGeo, poly) -> dict:
+    """GeoJSON geometry of a polygon in the line's plane (km), back in lon/lat rounded to 1e-7 deg."""
+    def tr(xy):
+        lat, lon = geo.plane.to_latlon(xy[:, 0], xy[:, 1])
+        return np.column_stack([np.round(lon, 7), np.round(lat, 7)])
+    return shapely.geometry.mapping(shapely.transform(poly, tr))
+
+
+def _corridor_feature(geo: _LineGeo, half_width_km: float) -> dict:
+    """The buffer of a line by `half_width_km` in its plane, as a GeoJSON geometry."""
+    return _polygon_lonlat(geo, shapely.buffer(geo.whole, float(half_width_km), quad_segs=16))
+
+
+def corridor_geojson(lines: pd.DataFrame, half_width_km: float) -> dict:
+    """Each line's corridor, every point within `half_width_km` of the line, as GeoJSON (RFC 7946).
+
+    The corridor is the buffer of the line (round ends, 16 segments per quarter circle) in the
+    line's local azimuthal equidistant plane (:class:`debrief.geodesy.LocalPlane` about the middle
+    of its extent), taken back to longitude/latitude and rounded to 1e-7 degrees (about 1 cm).
+
+    Parameters
+    ----------
+    lines : DataFrame
+        As :func:`debrief.io.lines.read_lines` returns it: ``line_id``, ``geometry`` (shapely
+        (Multi)LineString, lon/lat) and optionally ``name``.
+    half_width_km : float
+        Distance from the line to the corridor's edge, km (e.g. ``[lines] search_km``).
+
+    Returns
+    -------
+    dict
+        A FeatureCollection, one Polygon (or MultiPolygon) feature per line, in the order of
+        `lines`, with properties ``line_id``, ``name`` and ``half_width_m``.
+    """
+    feats = []
+    if lines is None:
+        return {"type": "FeatureCollection", "features": feats}
+    for _, row in lines.iterrows():
+        geo = _line_geo(row["geometry"])
+        name = row.get("name")
+        name = str(row["line_id"]) if name is None or pd.isna(name) else str(name)
+        feats.append({"type": "Feature", "geometry": _corridor_feature(geo, half_width_km),
+                      "properties": {"line_id": row["line_id"], "name": name,
+                                     "half_width_m": float(half_width_km) * 1000.0}})
+    return {"type": "FeatureCollection", "features": feats}
+
+
 def to_geojson(result: OutageMatch, lines: pd.DataFrame, config=None) -> dict:
     """Corridors and candidates as a GeoJSON FeatureCollection (RFC 7946, WGS84).
 
     Features: per line its search corridor (``kind`` ``search_corridor``, buffer of
-    ``search_km``); per outage with a candidate, the line's flashover corridor at the best
-    candidate's current (``flashover_corridor``, buffer of max(y_min, y_fo)); every candidate
-    stroke as a point (``candidate_stroke``) with its probabilities and rank.
+    ``search_km``, from :func:`corridor_geojson`); per outage with a candidate, the line's
+    flashover corridor at the best candidate's current (``flashover_corridor``, buffer of
+    max(y_min, y_fo)); every candidate stroke as a point (``candidate_stroke``) with its
+    probabilities and rank.
     """
     config, lc = _settings(config)
     feats = []
     geos = {row["line_id"]: _line_geo(row["geometry"]) for _, row in lines.iterrows()}
-
-    def polygon_lonlat(geo, poly):
-        def tr(xy):
-            lat, lon = geo.plane.to_latlon(xy[:, 0], xy[:, 1])
-            return np.column_stack([np.round(lon, 7), np.round(lat, 7)])
-        return shapely.geometry.mapping(shapely.transform(poly, tr))
-
-    for lid, geo in geos.items():
-        poly = shapely.buffer(geo.whole, lc["search_km"], quad_segs=16)
-        feats.append({"type": "Feature", "geometry": polygon_lonlat(geo, poly),
-                      "properties": {"kind": "search_corridor", "line_id": lid, "half_width_m": lc["search_km"] * 1000.0}})
+    for f in corridor_geojson(lines, lc["search_km"])["features"]:
+        p = f["properties"]
+        feats.append({"type": "Feature", "geometry": f["geometry"],
+                      "properties": {"kind": "search_corridor", "line_id": p["line_id"], "half_width_m": p["half_width_m"]}})
     v = result.verdicts
     for _, r in v.iterrows():
         if r["line_id"] not in geos or not pd.notna(r.get("best_stroke_time", pd.NaT)):
@@ -764,8 +805,7 @@ def to_geojson(result: OutageMatch, lines: pd.DataFrame, config=None) -> dict:
         bc = c[(c["outage_id"] == r["outage_id"]) & (c["rank"] == 1)].iloc[0]
         w_m = max(bc["y_min_m"], bc["y_fo_m"])
         geo = geos[r["line_id"]]
-        poly = shapely.buffer(geo.whole, w_m / 1000.0, quad_segs=16)
-        feats.append({"type": "Feature", "geometry": polygon_lonlat(geo, poly),
+        feats.append({"type": "Feature", "geometry": _corridor_feature(geo, w_m / 1000.0),
                       "properties": {"kind": "flashover_corridor", "outage_id": r["outage_id"], "line_id": r["line_id"],
                                      "half_width_m": round(float(w_m), 2), "y_min_m": round(float(bc["y_min_m"]), 2),
                                      "peak_current_ka": float(bc["peak_current_ka"]), "verdict": r["verdict"]}})

@@ -253,3 +253,106 @@ def test_site_map_draws_the_parcel_where_it_is():
     assert xy[:, 0].mean() == pytest.approx(0.0, abs=2e-3)
     assert np.median(xy[:, 1]) == pytest.approx(1.0, abs=2e-3)
     assert xy[:, 1].max() - xy[:, 1].min() == pytest.approx(0.2, abs=2e-3)
+
+
+def test_outage_map_shows_the_line_when_the_best_candidate_is_far_from_it():
+    # A straight north-south line through the point 1.5 km due west of the stroke (geographiclib
+    # Direct, Karney 2013): in the azimuthal equidistant plane about the stroke the line's nearest
+    # point (the foot of the perpendicular) is at x = -1.5 km, y = 0. The old view (±1 km about the
+    # stroke) left it out; the axes must now hold it, and the line must cross the view.
+    from shapely.geometry import LineString
+
+    lat0, lon0 = 45.42, -93.25
+    g = Geodesic.WGS84
+    west = g.Direct(lat0, lon0, 270.0, 1500.0)
+    north = g.Direct(west["lat2"], west["lon2"], 0.0, 3000.0)
+    south = g.Direct(west["lat2"], west["lon2"], 180.0, 3000.0)
+    line = LineString([(south["lon2"], south["lat2"]), (north["lon2"], north["lat2"])])
+    cand = pd.DataFrame({"latitude": [lat0], "longitude": [lon0], "peak_current_ka": [-40.0], "type": ["CG"],
+                         "semi_major_km": [0.4], "semi_minor_km": [0.2], "major_bearing_deg": [10.0],
+                         "distance_m": [1500.0]})
+    fig = figures.outage_map(line, cand, title="t")
+    ax = fig.axes[0]
+    (x0, x1), (y0, y1) = ax.get_xlim(), ax.get_ylim()
+    foot = (-1.5, 0.0)
+    assert x0 < foot[0] < x1 and y0 < foot[1] < y1
+    # Not at the very edge: a margin of at least a tenth of the view on the line's side.
+    assert foot[0] - x0 >= 0.1 * (x1 - x0)
+    assert x0 < 0.0 < x1 and y0 < 0.0 < y1  # the stroke stays in view too
+    assert min(x1 - x0, y1 - y0) >= 2.0  # the minimum half-width of 1 km
+    # The dotted segment drawn from the stroke to the foot point.
+    seg = next(ln for ln in ax.lines if ln.get_linestyle() == ":" and len(ln.get_xdata()) == 2)
+    assert np.allclose(seg.get_xdata(), [0.0, -1.5], atol=1e-3) and np.allclose(seg.get_ydata(), [0.0, 0.0], atol=1e-3)
+
+
+def test_outage_map_view_holds_the_fault_location():
+    # A fault logged 2.5 km due north of the stroke (geographiclib Direct): y = 2.5 km in view.
+    from shapely.geometry import LineString
+
+    lat0, lon0 = 45.42, -93.25
+    f = Geodesic.WGS84.Direct(lat0, lon0, 0.0, 2500.0)
+    line = LineString([(lon0 - 0.01, lat0), (lon0 + 0.01, lat0)])
+    cand = pd.DataFrame({"latitude": [lat0], "longitude": [lon0], "peak_current_ka": [-40.0], "type": ["CG"]})
+    ax = figures.outage_map(line, cand, fault_deg=(f["lat2"], f["lon2"])).axes[0]
+    y0, y1 = ax.get_ylim()
+    assert y0 < 0.0 and y1 > 2.5
+
+
+def _timeline_scenario():
+    # Constructed: a trip at t0 and reclosing operations 0.5 s and 15.6 s after it; four
+    # candidates at chosen offsets from the trip (the dt_s that match_outages would give them).
+    t0 = pd.Timestamp("2026-07-14T19:07:24.892Z")
+    row = pd.Series({"outage_id": "O-1", "line_id": "L-1", "time": t0,
+                     "reclose_times": (t0 + pd.Timedelta(seconds=0.5), t0 + pd.Timedelta(seconds=15.6))})
+    cand = pd.DataFrame({"dt_s": [-0.031, 7.25, -4.5, 15.7], "peak_current_ka": [-35.0, 22.0, -12.0, -8.5],
+                         "type": ["CG"] * 4, "rank": [1, 2, 3, 4], "p_within_corridor": [0.93, 0.2, 0.01, 0.0]})
+    return row, cand
+
+
+def test_outage_timeline_stems_at_dt_and_operation_lines_at_reclose_offsets():
+    row, cand = _timeline_scenario()
+    fig = figures.outage_timeline(row, cand, tolerance_s=10.0, tz="America/Chicago")
+    ax = fig.axes[0]
+    heads = next(c for c in ax.collections if c.get_gid() == "candidate-heads")
+    xy = heads.get_offsets()
+    assert np.allclose(xy[:, 0], cand["dt_s"]) and np.allclose(xy[:, 1], cand["peak_current_ka"].abs())
+    stems = next(c for c in ax.collections if c.get_gid() == "candidate-stems")
+    segs = stems.get_segments()
+    assert [s[0, 0] for s in segs] == pytest.approx(list(cand["dt_s"]))
+    assert [s[0, 1] for s in segs] == [0.0] * 4 and [s[1, 1] for s in segs] == pytest.approx([35.0, 22.0, 12.0, 8.5])
+    ops = {ln.get_gid(): ln.get_xdata()[0] for ln in ax.lines if (ln.get_gid() or "").startswith(("trip", "operation"))}
+    assert ops == pytest.approx({"trip": 0.0, "operation-1": 0.5, "operation-2": 15.6})
+    best = next(c for c in ax.collections if c.get_gid() == "best-candidate").get_offsets()
+    assert np.allclose(best, [[-0.031, 35.0]])
+    # The candidate window: trip - 10 s to the last operation + 10 s.
+    span = next(p for p in ax.patches if p.get_gid() == "candidate-window")
+    assert span.get_x() == pytest.approx(-10.0) and span.get_x() + span.get_width() == pytest.approx(25.6)
+    lo, hi = ax.get_xlim()
+    assert lo < -10.0 and hi > 25.6
+    title = ax.get_title(loc="left")
+    # 19:07:24.892 UTC is 14:07:24.892 CDT (UTC-5 in July; America/Chicago, IANA tz database).
+    assert "2026-07-14 19:07:24.892 UTC" in title and "14:07:24.892 CDT" in title
+
+
+def test_outage_timeline_is_deterministic_and_keeps_to_the_palette():
+    import re
+
+    row, cand = _timeline_scenario()
+    a = figures.to_svg(figures.outage_timeline(row, cand, tolerance_s=10.0))
+    b = figures.to_svg(figures.outage_timeline(row, cand, tolerance_s=10.0))
+    assert a == b
+    used = {c.upper() for c in re.findall(r"#[0-9a-fA-F]{6}\b", a)}
+    allowed = {getattr(palette, k).upper() for k in dir(palette) if isinstance(getattr(palette, k), str)
+               and getattr(palette, k).startswith("#")} | {"#000000", "#FFFFFF"}
+    assert used <= allowed, used - allowed
+
+
+def test_outage_timeline_without_reclosing_or_candidates():
+    t0 = pd.Timestamp("2026-07-14T20:00:00Z")
+    row = {"outage_id": "O-2", "line_id": "L-2", "time": t0, "reclose_times": ()}
+    ax = figures.outage_timeline(row, pd.DataFrame(columns=["dt_s", "peak_current_ka", "type"]), tolerance_s=2.0).axes[0]
+    gids = [ln.get_gid() for ln in ax.lines if ln.get_gid()]
+    assert gids == ["trip"]
+    assert not [c for c in ax.collections if c.get_gid() == "candidate-heads"]
+    lo, hi = ax.get_xlim()
+    assert lo < -2.0 and hi > 2.0

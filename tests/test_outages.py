@@ -16,7 +16,7 @@ from scipy.optimize import minimize_scalar
 
 from debrief import lines as L
 from debrief.config import from_dict, load_event_config
-from debrief.outages import (VERDICTS, classify, line_exposure, match_outages, matches_table,
+from debrief.outages import (VERDICTS, classify, corridor_geojson, line_exposure, match_outages, matches_table,
                              stroke_line_physics, to_geojson, verdict_records)
 
 T0 = pd.Timestamp("2026-07-14T20:00:00Z")
@@ -253,6 +253,61 @@ def test_geojson_and_exposure():
     assert ex.loc["A", "strokes_in_corridor"] == 1 and ex.loc["A", "strokes_within_search"] == 2
     # N = Ng (28 h^0.6 + b)/10 (Eriksson 1987, from memory): Ng 2, h 10 -> 22.294 per 100 km yr [X]
     assert ex.loc["A", "direct_strikes_per_100km_yr"] == pytest.approx(22.294, abs=1e-3)
+
+
+def _distance_to_meridian_segment_m(lat, lon, lon_line, lat_lo, lat_hi):
+    """GeographicLib (Karney 2013): shortest geodesic from a point to a meridian segment, m."""
+    f = minimize_scalar(lambda phi: Geodesic.WGS84.Inverse(lat, lon, phi, lon_line)["s12"],
+                        bounds=(lat_lo, lat_hi), method="bounded", options={"xatol": 1e-10})
+    return min(f.fun, Geodesic.WGS84.Inverse(lat, lon, lat_lo, lon_line)["s12"],
+               Geodesic.WGS84.Inverse(lat, lon, lat_hi, lon_line)["s12"])
+
+
+@pytest.mark.parametrize("half_width_km", [0.35, 2.0])
+def test_corridor_vertices_lie_at_the_half_width_from_the_line(half_width_km):
+    # Every vertex of the corridor of a straight line (a meridian segment, 11 km) is half_width
+    # from it, measured as the geodesic to the nearest point of the segment by GeographicLib.
+    # Tolerance 2 cm: vertices are rounded to 1e-7 deg (<= 1.1 cm in latitude, 0.8 cm in
+    # longitude here); the local plane's scale error within 6 km of its centre is below 1e-6.
+    lines = pd.DataFrame([_line("A")])
+    fc = corridor_geojson(lines, half_width_km)
+    assert fc["type"] == "FeatureCollection" and len(fc["features"]) == 1
+    f = fc["features"][0]
+    assert f["properties"] == {"line_id": "A", "name": "A", "half_width_m": half_width_km * 1000.0}
+    assert f["geometry"]["type"] == "Polygon"
+    ring = np.asarray(f["geometry"]["coordinates"][0])
+    assert len(ring) > 40 and np.array_equal(ring[0], ring[-1])  # closed, round ends (16 segments a quarter)
+    d = [_distance_to_meridian_segment_m(lat, lon, -93.20, 45.40, 45.50) for lon, lat in ring[:-1]]
+    assert np.allclose(d, half_width_km * 1000.0, atol=0.02)
+    # On both sides of the line, and around it: the whole segment lies inside the corridor.
+    assert (ring[:, 0] < -93.20).sum() > 10 and (ring[:, 0] > -93.20).sum() > 10
+    assert shapely.geometry.shape(f["geometry"]).contains(_line("A")["geometry"])
+
+
+def test_corridor_one_feature_per_line_in_order():
+    lines = pd.DataFrame([_line("A"), _line("B", coords=((-93.00, 45.40), (-93.05, 45.45), (-93.00, 45.50)))])
+    lines.loc[1, "name"] = "Bluff feeder"
+    fc = corridor_geojson(lines, 1.0)
+    assert [f["properties"]["line_id"] for f in fc["features"]] == ["A", "B"]
+    assert [f["properties"]["name"] for f in fc["features"]] == ["A", "Bluff feeder"]
+    # The bend vertex of B (on the line) is inside its corridor and 1.5 km east of it is not.
+    poly = shapely.geometry.shape(fc["features"][1]["geometry"])
+    la, lo = _east_of(45.45, -93.05, 1500.0)
+    assert poly.contains(shapely.Point(-93.05, 45.45)) and not poly.contains(shapely.Point(lo, la))
+    assert corridor_geojson(lines.iloc[:0], 1.0)["features"] == []
+
+
+def test_geojson_search_corridors_are_the_corridor_function():
+    # to_geojson's search corridors: one per line, kind and properties as before, geometry the
+    # corridor of search_km (2 km by default) from corridor_geojson.
+    strokes, outages, lines = _scenario()
+    r = match_outages(strokes, outages, lines)
+    gj = to_geojson(r, lines)
+    corr = [f for f in gj["features"] if f["properties"]["kind"] == "search_corridor"]
+    assert [f["properties"] for f in corr] == [{"kind": "search_corridor", "line_id": "A", "half_width_m": 2000.0},
+                                               {"kind": "search_corridor", "line_id": "B", "half_width_m": 2000.0}]
+    assert [f["geometry"] for f in corr] == [f["geometry"] for f in corridor_geojson(lines, 2.0)["features"]]
+    assert [f["properties"]["kind"] for f in gj["features"][:2]] == ["search_corridor"] * 2
 
 
 # --- the example event: causes constructed by debrief.synth_grid ------------------------------

@@ -274,6 +274,51 @@ def test_map_draws_sites_and_lines_from_the_folder(tmp_path, event):
         assert g.Inverse(45.45, -93.25, lat, lon)["s12"] == pytest.approx(3000.0, abs=1.0)
 
 
+def test_map_draws_one_corridor_per_line_at_search_km(tmp_path, event):
+    # Two invented lines (a meridian segment and a bent line) and [lines] search_km = 1.5: the
+    # corridor layer holds one polygon per line, is what the core corridor function gives, and
+    # the straight line's corridor vertices are 1.5 km from it (the shortest geodesic to the
+    # segment by GeographicLib, Karney 2013; 2 cm for the 1e-7 deg rounding of the vertices).
+    from debrief.outages import corridor_geojson
+
+    feats = [{"type": "Feature", "properties": {"id": "F1", "name": "North feeder", "height_m": 10, "cfo_kv": 150},
+              "geometry": {"type": "LineString", "coordinates": [[-93.30, 45.40], [-93.30, 45.50]]}},
+             {"type": "Feature", "properties": {"id": "F2", "height_m": 12, "cfo_kv": 300},
+              "geometry": {"type": "LineString", "coordinates": [[-93.20, 45.35], [-93.15, 45.40], [-93.10, 45.38]]}}]
+    (tmp_path / "lines.geojson").write_text(json.dumps({"type": "FeatureCollection", "features": feats}), encoding="utf-8")
+    cfg = from_dict({"name": "x", "lines": {"search_km": 1.5}}, event_dir=tmp_path)
+    ev = Event(config=cfg, strokes=event.strokes, flashes=event.flashes, ledger=None, start=event.start, end=event.end)
+    load_optional_inputs(ev)  # what load_event does for a folder
+    m = StrokeMap(ExploreState(ev))
+    got = m.corridor_layer.data["features"]
+    assert ev.problems == [] and len(ev.lines) == 2
+    assert [f["properties"]["line_id"] for f in got] == ["F1", "F2"]
+    assert [f["properties"]["name"] for f in got][0] == "North feeder"
+    assert [f["properties"]["half_width_m"] for f in got] == [1500.0, 1500.0]
+    assert [f["geometry"]["type"] for f in got] == ["Polygon", "Polygon"]
+    core = corridor_geojson(ev.lines, 1.5)["features"]  # the widget draws the core's polygons
+    assert [f["geometry"] for f in got] == [f["geometry"] for f in core]
+    assert all(f["properties"].items() >= c["properties"].items() for f, c in zip(got, core))
+    assert m.corridor_layer in m.map.layers and m.corridor_layer.name == "line corridors"
+    assert m.map.layers.index(m.corridor_layer) < m.map.layers.index(m.lines_layer)  # under the lines
+    from scipy.optimize import minimize_scalar
+
+    ring = np.asarray(got[0]["geometry"]["coordinates"][0])[:-1]
+    g = Geodesic.WGS84
+    for lon, lat in ring[::4]:
+        f = minimize_scalar(lambda phi: g.Inverse(lat, lon, phi, -93.30)["s12"], bounds=(45.40, 45.50),
+                            method="bounded", options={"xatol": 1e-10})
+        d = min(f.fun, g.Inverse(lat, lon, 45.40, -93.30)["s12"], g.Inverse(lat, lon, 45.50, -93.30)["s12"])
+        assert d == pytest.approx(1500.0, abs=0.02)
+    assert "line corridor (1.5 km each side" in m.legend.value
+
+
+def test_map_without_lines_has_an_empty_corridor_layer(event):
+    m = StrokeMap(ExploreState(event))
+    assert m.corridor_layer.data["features"] == []
+    assert "line corridor" not in m.legend.value
+
+
 # -- drawing geometry -----------------------------------------------------------------------------
 def test_ellipse_outline_matches_local_plane_and_polar_form():
     lat0, lon0, a, b, br = 45.5, -93.2, 2.0, 0.5, 30.0

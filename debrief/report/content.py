@@ -842,8 +842,9 @@ def crew_log_html(periods: pd.DataFrame, data: ReportData) -> str:
     return "".join(out)
 
 
-def outage_maps_html(result, data: ReportData, max_maps: int = 12) -> str:
-    """A zoomed map per outage with candidates: its line, the candidates and their ellipses."""
+def outage_figures_html(result, data: ReportData, max_outages: int = 12) -> str:
+    """Per outage with candidates, side by side: a zoomed map (line, candidates, ellipses) and a
+    timeline of the candidates against the trip and reclose times."""
     from .. import figures
 
     c = result.candidates
@@ -854,8 +855,8 @@ def outage_maps_html(result, data: ReportData, max_maps: int = 12) -> str:
     out = []
     verdicts = result.verdicts.set_index("outage_id")
     for k, (oid, group) in enumerate(c.groupby("outage_id", sort=False)):
-        if k >= max_maps:
-            out.append(note(f"Maps are shown for the first {max_maps} outages with candidates."))
+        if k >= max_outages:
+            out.append(note(f"Maps and timelines are shown for the first {max_outages} outages with candidates."))
             break
         g = group.sort_values("rank", kind="stable").reset_index(drop=True)
         idx = g["stroke_index"].to_numpy()
@@ -864,14 +865,32 @@ def outage_maps_html(result, data: ReportData, max_maps: int = 12) -> str:
                 g[col] = data.strokes[col].to_numpy()[idx]
         line_id = g["line_id"].iloc[0]
         geom = lines.loc[line_id, "geometry"] if lines is not None and line_id in lines.index else None
-        fault = None
-        if oid in verdicts.index and data.outages is not None:
+        fault, orow = None, None
+        if data.outages is not None:
             o = data.outages[data.outages["outage_id"] == oid]
-            if len(o) and {"fault_latitude", "fault_longitude"} <= set(o.columns):
-                fault = (float(o["fault_latitude"].iloc[0]), float(o["fault_longitude"].iloc[0]))
+            if len(o):
+                orow = o.iloc[0]
+                if {"fault_latitude", "fault_longitude"} <= set(o.columns):
+                    fault = (float(orow["fault_latitude"]), float(orow["fault_longitude"]))
         verdict = str(verdicts.loc[oid, "verdict"]).replace("_", " ") if oid in verdicts.index else ""
-        svg = figures.to_svg(figures.outage_map(geom, g, fault_deg=fault, title=f"{oid} on {line_id}: {verdict}"))
-        out.append(figure_html(svg, alt=f"Map of outage {oid}",
-                               caption=f"Outage {oid}, line {line_id}: the candidate strokes and their error ellipses; "
-                                       "the best candidate circled."))
+        title = f"{oid} on {line_id}: {verdict}"
+        svg = figures.to_svg(figures.outage_map(geom, g, fault_deg=fault, title=title))
+        cells = [figure_html(svg, alt=f"Map of outage {oid}",
+                             caption=f"Outage {oid}, line {line_id}: the candidate strokes and their error ellipses; "
+                                     "the best candidate circled, its shortest way to the line dotted "
+                                     "(distance from its reported position).")]
+        if orow is not None and oid in verdicts.index:
+            tol = float(verdicts.loc[oid, "clock_tolerance_s"])
+            ops = orow.get("reclose_times") or ()
+            svg = figures.to_svg(figures.outage_timeline(orow, g, tolerance_s=tol, tz=data.tz, title=title))
+            cap = (f"Outage {oid}: the candidate strokes (stem height |peak current|) against the logged trip at "
+                   f"{_iso(orow['time'])}"
+                   + (f" and its {len(ops)} later operation(s) (dashed)" if len(ops) else "")
+                   + f"; shaded: the candidate window, from {tol:g} s before the trip to {tol:g} s after "
+                   + ("the last operation" if len(ops) else "it") + " (the clock tolerance); the best candidate circled. "
+                   + f"The time axis is linear within {figures.TIMELINE_LINEAR_S:g} s of the trip and logarithmic beyond.")
+            cells.append(figure_html(svg, alt=f"Timeline of outage {oid}", caption=cap))
+        out.append('<div class="debrief-outage-figures" style="display:flex;flex-wrap:wrap;gap:0 1rem;'
+                   'align-items:flex-start">'
+                   + "".join(f'<div style="flex:1 1 24rem;min-width:0">{cell}</div>' for cell in cells) + "</div>")
     return "".join(out)

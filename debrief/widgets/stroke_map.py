@@ -1,4 +1,4 @@
-"""The stroke map (ipyleaflet): strokes of the window, error ellipses, sites, lines.
+"""The stroke map (ipyleaflet): strokes of the window, error ellipses, sites, lines and their corridors.
 
 Works offline: the map has no tile layer unless `tile_url` is given; a graticule and a plain
 background stand in for it. Raw stroke arrays stay in the kernel; only what is drawn is sent.
@@ -18,6 +18,7 @@ import pandas as pd
 from ipyleaflet import GeoJSON, Map, ScaleControl, TileLayer, WidgetControl
 
 from .. import palette
+from ..outages import corridor_geojson
 from .geometry import circle_outline, ellipse_outlines, fit_view, graticule
 from .state import ExploreState, ensure_state, filter_mask_codes, load_sites
 
@@ -39,8 +40,15 @@ def _point_style(stroke_type: str, polarity: str) -> dict:
     return {"radius": 4, "color": colour, "weight": 1.5, "opacity": 0.9, "fillOpacity": 0.0}
 
 
-def legend_html(ellipse_confidence: float, extra: str = "") -> str:
-    """The map legend: colour classes, ellipses, sites, density cells."""
+#: How the line corridors are drawn: faint, so strokes inside them stay readable.
+CORRIDOR_STYLE = {"color": palette.LINE, "weight": 1, "opacity": 0.25, "fillColor": palette.LINE, "fillOpacity": 0.06}
+
+
+def legend_html(ellipse_confidence: float, extra: str = "", *, corridor_km: float | None = None) -> str:
+    """The map legend: colour classes, ellipses, sites, lines and their corridors, density cells.
+
+    `corridor_km` (the ``[lines] search_km`` half-width) adds the corridor row when given.
+    """
     rows = []
     for cls in reversed(CLASSES):
         c = palette.stroke_colour(*cls)
@@ -52,6 +60,10 @@ def legend_html(ellipse_confidence: float, extra: str = "") -> str:
     rows.append(f'<div><span class="sw" style="border:2px solid {palette.SITE}"></span>site and radius</div>')
     rows.append(f'<div><span class="sw" style="background:{palette.LINE};height:3px;border-radius:0;vertical-align:3px"></span>'
                 "power line</div>")
+    if corridor_km is not None:
+        rows.append(f'<div><span class="sw" style="background:{palette.LINE};opacity:{CORRIDOR_STYLE["fillOpacity"] * 3:.2f};'
+                    f'border:1px solid {palette.LINE};border-radius:0"></span>'
+                    f"line corridor ({corridor_km:g} km each side: the outage search distance)</div>")
     rows.append(f'<div><span class="sw" style="background:{palette.LINE};opacity:.5;border-radius:0"></span>'
                 "stroke count per cell (too many to draw)</div>")
     rows.append(f'<div><span class="sw" style="background:{palette.HIGHLIGHT};border:1px solid {palette.LINE}"></span>selected</div>')
@@ -111,6 +123,8 @@ class StrokeMap(W.VBox):
                                        style={"color": palette.GRID, "weight": 1, "opacity": 1.0})
         self.lines_layer = GeoJSON(data=self._lines_data(), name="lines",
                                    style={"color": palette.LINE, "weight": 2, "opacity": 0.8})
+        self.corridor_km = float(cfg["lines"]["search_km"])
+        self.corridor_layer = GeoJSON(data=self._corridor_data(), name="line corridors", style=dict(CORRIDOR_STYLE))
         self.cells_layer = GeoJSON(data=_fc([]), name="stroke counts")
         # Styles of often-redrawn layers go in each feature: a layer-level `style` makes
         # ipyleaflet deep-copy the whole data on every update.
@@ -123,13 +137,14 @@ class StrokeMap(W.VBox):
                                    point_style={"radius": 5, "color": palette.SITE, "fillColor": palette.SITE, "fillOpacity": 1.0})
         self.focus_layer = GeoJSON(data=_fc([]), name="site in focus", style={"color": palette.SITE, "weight": 3, "dashArray": "6 4", "fill": False},
                                    point_style={"radius": 6, "color": palette.LINE, "weight": 1, "fillColor": palette.SITE, "fillOpacity": 1.0})
-        for layer in (self.graticule_layer, self.cells_layer, self.lines_layer, self.ellipse_layer, self.sites_layer,
-                      self.focus_layer, self.highlight_layer, *self.point_layers.values()):
+        for layer in (self.graticule_layer, self.corridor_layer, self.cells_layer, self.lines_layer, self.ellipse_layer,
+                      self.sites_layer, self.focus_layer, self.highlight_layer, *self.point_layers.values()):
             self.map.add(layer)
         for layer in self.point_layers.values():
             layer.on_click(self._on_point_click)
         self.map.add(ScaleControl(position="bottomleft", imperial=False))
-        self.legend = W.HTML(legend_html(cfg.get("ellipse_confidence")))
+        self.legend = W.HTML(legend_html(cfg.get("ellipse_confidence"),
+                                         corridor_km=self.corridor_km if self.corridor_layer.data["features"] else None))
         self.map.add(WidgetControl(widget=self.legend, position="bottomright"))
         self.status = W.HTML()
         self.status.add_class("debrief-map-status")
@@ -189,6 +204,13 @@ class StrokeMap(W.VBox):
         if data.get("type") == "FeatureCollection":
             return {"type": "FeatureCollection", "features": [f for f in data.get("features", []) if f.get("geometry")]}
         return _fc([])
+
+    def _corridor_data(self) -> dict:
+        """The event's line corridors at ``[lines] search_km`` (core: debrief.outages.corridor_geojson)."""
+        lines = self.state.event.lines
+        if lines is None or not len(lines):
+            return _fc([])
+        return corridor_geojson(lines, self.corridor_km)
 
     def _sites_data(self) -> dict:
         sites = load_sites(self.state.event)
