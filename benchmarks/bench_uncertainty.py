@@ -5,10 +5,16 @@
    ratio 1-100, offsets up to 50 major semi-axes; half the sample within a few sigma of the
    circle's edge), plus a scipy dblquad spot check of the reference. The chosen order (32) must
    keep the maximum absolute error below 1e-4.
-2. Speed, side by side: 100,000 strokes with p_within_circle (elliptical errors), the circular
+2. Corridor boundary integral: Gauss-Legendre order per panel against 24 nodes over strokes
+   that take the boundary path (the chosen order must keep the error below 1e-8).
+3. Speed, side by side: 100,000 strokes with p_within_circle (elliptical errors), the circular
    ncx2 path, a 64-gon with p_within_polygon, and a corridor along a 3-segment line.
+4. Corridor, old vs new: the buffer-polygon method (_p_within_corridor_polygon) against
+   p_within_corridor on 100,000 strokes near the 3-segment line, one shared half-width and
+   per-stroke half-widths; medians, ratio, the largest difference and the split of strokes
+   over the paths (far exit, deep exit, 1-D offset formula, boundary integral).
 
-Run: ``.venv/bin/python benchmarks/bench_uncertainty.py [--n-error 100000] [--repeat 5]``.
+Run: ``.venv/bin/python benchmarks/bench_uncertainty.py [--n-error 100000] [--repeat 5] [--repeat-old 3]``.
 """
 
 from __future__ import annotations
@@ -55,6 +61,7 @@ def main(argv=None):
     ap.add_argument("--n-error", type=int, default=100_000)
     ap.add_argument("--n-speed", type=int, default=100_000)
     ap.add_argument("--repeat", type=int, default=5)
+    ap.add_argument("--repeat-old", type=int, default=3)
     a = ap.parse_args(argv)
 
     m1, m2, s1, s2, r = grid(a.n_error)
@@ -99,6 +106,37 @@ def main(argv=None):
     print(f"  {'p_within_circle, circular (ncx2)':<36} {t_circ * 1e3:8.1f} ms  {t_circ / t_ell:.2f}")
     print(f"  {'p_within_polygon, 64-gon':<36} {t_poly * 1e3:8.1f} ms  {t_poly / t_ell:.2f}")
     print(f"  {'p_within_corridor, 3 segments':<36} {t_cor * 1e3:8.1f} ms  {t_cor / t_ell:.2f}")
+
+    # boundary integral: quadrature order on its panels
+    w_each = rng.uniform(0.02, 0.5, n)
+    code = U.p_within_corridor(dx, dy, sxx, syy, sxy, lx, ly, w_each, return_paths=True)[1]
+    j = np.flatnonzero(code == 3)[:20_000]
+    s1_, s2_, _ = U.principal_axes(sxx[j], syy[j], sxy[j])
+    l11 = np.sqrt(sxx[j])
+    l21 = sxy[j] / l11
+    l22 = np.sqrt(np.maximum(syy[j] - l21 * l21, 0.0))
+
+    def boundary(nodes):
+        out = np.empty(j.size)
+        U._corridor_boundary(dx[j], dy[j], l11, l21, l22, s2_, w_each[j], lx, ly, *U._gauss_legendre(nodes), out)
+        return out
+
+    bref = boundary(24)
+    print(f"\ncorridor boundary integral, {j.size:,} boundary-path strokes, Gauss-Legendre nodes per panel vs 24:")
+    for nodes in (6, 8, 10, 12, 16):
+        mark = "  <- used" if nodes == U._BOUNDARY_NODES else ""
+        print(f"  N = {nodes:3d}: max abs error {np.abs(boundary(nodes) - bref).max():.1e}{mark}")
+
+    # old (buffer polygon) vs new, shared and per-stroke half-widths
+    print(f"\ncorridor, {n:,} strokes near a 3-segment line; old median of {a.repeat_old}, new median of {a.repeat}:")
+    print(f"  {'half-width':<22}{'old s':>9}{'new s':>9}{'ratio':>9}{'max |new-old|':>15}   paths far/deep/1-D/boundary")
+    for label, hw in (("0.3 km, shared", 0.3), ("0.02-0.5 km, each", w_each)):
+        t_old = med(lambda: U._p_within_corridor_polygon(dx, dy, sxx, syy, sxy, lx, ly, hw), a.repeat_old)
+        t_new = med(lambda: U.p_within_corridor(dx, dy, sxx, syy, sxy, lx, ly, hw), a.repeat)
+        old = U._p_within_corridor_polygon(dx, dy, sxx, syy, sxy, lx, ly, hw)
+        new, paths = U.p_within_corridor(dx, dy, sxx, syy, sxy, lx, ly, hw, return_paths=True)
+        split = "/".join(f"{np.mean(paths == c) * 100:.1f}" for c in range(4))
+        print(f"  {label:<22}{t_old:9.2f}{t_new:9.3f}{t_old / t_new:8.0f}x{np.abs(new - old).max():15.1e}   {split} %")
 
 
 if __name__ == "__main__":

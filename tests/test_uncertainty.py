@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import zlib
 
 import numpy as np
 import pandas as pd
@@ -308,7 +309,8 @@ def test_adaptive_round_ends_miss_less_than_1e5():
     a = rng.uniform(0.05, 0.8, n)
     sxx, syy, sxy = U.ellipse_covariance(a, a * rng.uniform(0.2, 1.0, n), rng.uniform(0, 180, n), 0.5)
     w = rng.uniform(0.01, 0.3, n)
-    got = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w)
+    got = U._p_within_corridor_polygon(x, y, sxx, syy, sxy, lx, ly, w)  # the polygon reference
+    exact = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w)  # exact round parts
     q = U._corridor_quad_segs(w, *U.principal_axes(sxx, syy, sxy)[:2], 3)
     fewer = q < U.CORRIDOR_QUAD_SEGS
     assert fewer.sum() > 10
@@ -318,6 +320,186 @@ def test_adaptive_round_ends_miss_less_than_1e5():
     err = np.abs(got - ref)
     assert err[fewer].max() < 1e-5  # the bound of _corridor_quad_segs
     assert err.max() < 1e-4  # the stated accuracy where the cap binds
+    # the boundary integral has no inscribed polygon: within the 512-segment buffer's own miss
+    assert np.abs(exact - ref).max() < 1e-5
+
+
+def _corridor_sample(seed, n, lx, ly):
+    """Seeded strokes about a polyline: positions within a few km, 50 % ellipses 0.05-1 km with
+    axis ratio 1-50 and any bearing, per-stroke half-widths 0.01-0.8 km; a third placed within
+    one error sd of a vertex, where the round joins and ends matter."""
+    rng = np.random.default_rng(seed)
+    lx, ly = np.asarray(lx, float), np.asarray(ly, float)
+    x = rng.uniform(lx.min() - 1.5, lx.max() + 1.5, n)
+    y = rng.uniform(ly.min() - 1.5, ly.max() + 1.5, n)
+    a = 10 ** rng.uniform(np.log10(0.05), 0, n)
+    sxx, syy, sxy = U.ellipse_covariance(a, a / 10 ** rng.uniform(0, np.log10(50), n), rng.uniform(0, 180, n), 0.5)
+    w = 10 ** rng.uniform(-2, np.log10(0.8), n)
+    v = rng.integers(0, lx.size, n)
+    near = rng.random(n) < 1 / 3
+    x = np.where(near, lx[v] + rng.normal(0, 1, n) * (w + a), x)
+    y = np.where(near, ly[v] + rng.normal(0, 1, n) * (w + a), y)
+    return x, y, sxx, syy, sxy, w
+
+
+_LINES = {
+    "three segments": ([-3.0, -1.0, 1.0, 3.0], [-2.0, 0.5, -0.5, 2.0]),
+    "sharp turn": ([0.0, 2.0, 0.3], [0.0, 0.0, 0.25]),
+    "short segments": ([0.0, 0.2, 0.3, 0.35, 1.0], [0.0, 0.05, -0.1, 0.2, 0.2]),
+    "comes back near itself": ([0.0, 3.0, 3.0, 0.5], [0.0, 0.0, 0.4, 0.3]),
+    "crosses itself": ([0.0, 2.0, 1.5, 1.0], [0.0, 1.0, -0.5, 1.5]),
+    "single segment": ([0.0, 1.5], [0.0, 0.5]),
+}
+
+
+@pytest.mark.parametrize("name", list(_LINES))
+def test_corridor_matches_polygon_reference(name):
+    # Against the buffer-polygon method (shapely buffer + Owen's T triangles, Owen 1956). Its
+    # round parts are inscribed polygons, so it may only be lower: by < 1e-5 where its adaptive
+    # segment count is below the cap (its bound), by a little more where the cap of 128 binds
+    # (errors 50-500 times narrower than the corridor; there the 2048-segment test below checks).
+    lx, ly = _LINES[name]
+    x, y, sxx, syy, sxy, w = _corridor_sample(zlib.crc32(name.encode()), 1500, lx, ly)
+    got, paths = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w, return_paths=True)
+    ref = U._p_within_corridor_polygon(x, y, sxx, syy, sxy, lx, ly, w)
+    assert np.all((got >= 0.0) & (got <= 1.0))
+    diff = got - ref
+    assert diff.min() > -1e-9
+    s1, s2, _ = U.principal_axes(sxx, syy, sxy)
+    capped = U._corridor_quad_segs(w, s1, s2, len(lx)) >= U.CORRIDOR_QUAD_SEGS
+    assert diff[~capped].max() < 1e-5
+    assert diff.max() < 2e-4
+    assert np.count_nonzero(paths == 3) > 100  # the boundary path is exercised
+
+
+def test_corridor_boundary_path_matches_fine_polygon():
+    # Tighter: against the polygon method with 2048 segments per quarter circle (its miss
+    # < 3e-7 here) on strokes that take the boundary path, including errors much narrower than
+    # the corridor (where the polygon reference is at its 128-segment cap).
+    import shapely
+
+    lx, ly = _LINES["three segments"]
+    x, y, sxx, syy, sxy, w = _corridor_sample(99, 400, lx, ly)
+    got, paths = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w, return_paths=True)
+    line = shapely.LineString(np.column_stack([lx, ly]))
+    idx = np.flatnonzero(paths == 3)[:60]
+    for i in idx:
+        poly = line.buffer(w[i], quad_segs=2048)
+        ref = float(U.p_within_polygon(x[i], y[i], sxx[i], syy[i], sxy[i], *np.asarray(poly.exterior.coords).T))
+        assert got[i] == pytest.approx(ref, abs=1e-6)
+
+
+def _stadium_halfheight(w, length):
+    def h(x):
+        if x < 0.0:
+            return math.sqrt(max(w * w - x * x, 0.0))
+        if x > length:
+            return math.sqrt(max(w * w - (x - length) ** 2, 0.0))
+        return w
+    return h
+
+
+@pytest.mark.parametrize("mx, my, a, b, br, w", [
+    (-0.05, 0.02, 0.12, 0.05, 30.0, 0.1),   # at the round end, error about the width
+    (1.02, -0.08, 0.3, 0.06, 100.0, 0.06),  # beyond the other end, narrow corridor
+    (0.0, 0.1, 0.05, 0.01, 80.0, 0.1),      # on the end's tangent point, elongated error
+    (0.4, 0.3, 0.6, 0.3, 10.0, 0.25),       # wide error over the whole stadium
+])
+def test_stadium_corridor_vs_dblquad(mx, my, a, b, br, w):
+    # scipy.integrate (nquad; epsabs 1e-9) of scipy.stats.multivariate_normal.pdf over one
+    # segment's corridor {|y| <= h(x)}: a rectangle with two half discs.
+    length = 1.0
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(a, b, br, 0.5))
+    h = _stadium_halfheight(w, length)
+    ref = _mvn_box_dblquad([mx, my], [[sxx, sxy], [sxy, syy]], -w, length + w, lambda x: -h(x), h)
+    got, path = U.p_within_corridor(mx, my, sxx, syy, sxy, [0.0, length], [0.0, 0.0], w, return_paths=True)
+    assert float(got) == pytest.approx(ref, abs=1e-7)
+
+
+@pytest.mark.parametrize("mx, my, a, b, br, w", [
+    (2.05, 0.05, 0.15, 0.06, 45.0, 0.1),  # at the outer corner of a right-angle turn
+    (1.9, 0.1, 0.1, 0.02, 135.0, 0.08),   # in the inner corner
+    (2.0, -0.1, 0.4, 0.2, 0.0, 0.15),      # wide error over the join
+])
+def test_right_angle_corridor_vs_dblquad(mx, my, a, b, br, w):
+    # The corridor of (0,0)-(2,0)-(2,2) cut at fixed x is one interval: [-h1(x), h1(x)] left of
+    # the second segment's reach, [-w or -c, 2 + c] within it (c = sqrt(w^2 - (x-2)^2));
+    # scipy.integrate (nquad) of scipy.stats.multivariate_normal.pdf over it.
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(a, b, br, 0.5))
+    h1 = _stadium_halfheight(w, 2.0)
+
+    def lo(x):
+        if x < 2.0 - w:
+            return -h1(x)
+        return -w if x <= 2.0 else -math.sqrt(max(w * w - (x - 2.0) ** 2, 0.0))
+
+    def hi(x):
+        if x < 2.0 - w:
+            return h1(x)
+        return 2.0 + math.sqrt(max(w * w - (x - 2.0) ** 2, 0.0))
+
+    cov = [[sxx, sxy], [sxy, syy]]
+    ref = _mvn_box_dblquad([mx, my], cov, -w, 2.0 - w, lo, hi) + _mvn_box_dblquad([mx, my], cov, 2.0 - w, 2.0 + w, lo, hi)
+    got = float(U.p_within_corridor(mx, my, sxx, syy, sxy, [0.0, 2.0, 2.0], [0.0, 0.0, 2.0], w))
+    assert got == pytest.approx(ref, abs=1e-7)
+
+
+@pytest.mark.parametrize("name", ["sharp turn", "comes back near itself", "crosses itself", "short segments"])
+def test_corridor_vs_monte_carlo_awkward_lines(name):
+    # Seeded Monte Carlo, 200,000 draws per stroke, shapely distance to the line; tolerance 5
+    # binomial standard errors (+1e-6 where the probability is near 0 or 1).
+    import shapely
+
+    lx, ly = _LINES[name]
+    line = shapely.LineString(np.column_stack([lx, ly]))
+    x, y, sxx, syy, sxy, w = _corridor_sample(17, 400, lx, ly)
+    got, paths = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w, return_paths=True)
+    pick = np.flatnonzero((paths == 3) & (got > 0.01) & (got < 0.99))[:6]
+    assert pick.size >= 3
+    rng = np.random.default_rng(23)
+    n = 200_000
+    for i in pick:
+        pts = rng.multivariate_normal([x[i], y[i]], [[sxx[i], sxy[i]], [sxy[i], syy[i]]], size=n)
+        mc = np.mean(shapely.distance(shapely.points(pts), line) <= w[i])
+        assert abs(got[i] - mc) < 5 * math.sqrt(mc * (1 - mc) / n) + 1e-6
+
+
+def test_corridor_paths_and_shortcut_accuracy():
+    # Exits and the 1-D path are taken where their error bound is < 1e-10: against the boundary
+    # integral itself (forced on the same strokes) they agree to that.
+    lx, ly = [0.0, 20.0, 40.0], [0.0, 0.0, 5.0]
+    rng = np.random.default_rng(3)
+    n = 3000
+    x, y = rng.uniform(-2, 42, n), rng.uniform(-3, 8, n)
+    a = 10 ** rng.uniform(np.log10(0.02), 0, n)
+    sxx, syy, sxy = U.ellipse_covariance(a, a * rng.uniform(0.1, 1, n), rng.uniform(0, 180, n), 0.5)
+    w = rng.uniform(0.02, 1.0, n)
+    got, paths = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, w, return_paths=True)
+    assert all(np.count_nonzero(paths == c) > 20 for c in (0, 1, 2, 3)), np.bincount(paths)
+    s1, s2, _ = U.principal_axes(sxx, syy, sxy)
+    l11 = np.sqrt(sxx)
+    l21 = sxy / l11
+    l22 = np.sqrt(syy - l21**2)
+    forced = np.empty(n)
+    glx, glw = U._gauss_legendre(U._BOUNDARY_NODES)
+    U._corridor_boundary(x, y, l11, l21, l22, s2, w, np.asarray(lx), np.asarray(ly), glx, glw, forced)
+    assert np.abs(got - forced).max() < 1e-9
+
+
+def test_degenerate_lines_fall_back_to_the_polygon_method():
+    # A repeated vertex (closed line) or a line doubling back on itself: pieces of the corridor
+    # boundary would coincide, so the polygon method answers; repeated consecutive vertices are
+    # simply dropped.
+    sxx, syy, sxy = (float(v) for v in U.ellipse_covariance(0.3, 0.2, 20.0, 0.5))
+    x, y = np.array([0.5, 1.0, 0.1]), np.array([0.1, 0.5, 0.0])
+    for lx, ly in [([0.0, 1.0, 1.0, 0.0], [0.0, 0.0, 1.0, 0.0]), ([0.0, 1.0, 0.5], [0.0, 0.0, 0.0])]:
+        got = U.p_within_corridor(x, y, sxx, syy, sxy, lx, ly, 0.1)
+        ref = U._p_within_corridor_polygon(x, y, sxx, syy, sxy, lx, ly, 0.1)
+        np.testing.assert_allclose(got, ref, atol=1e-12)
+    got = U.p_within_corridor(x, y, sxx, syy, sxy, [0.0, 1.0, 1.0, 2.0], [0.0, 0.0, 0.0, 1.0], 0.1)
+    ref = U.p_within_corridor(x, y, sxx, syy, sxy, [0.0, 1.0, 2.0], [0.0, 0.0, 1.0], 0.1)
+    np.testing.assert_allclose(got, ref, atol=1e-12)
+    assert np.isnan(U.p_within_corridor([np.nan], [0.0], sxx, syy, sxy, [0.0, 1.0], [0.0, 0.0], 0.1)[0])
 
 
 def test_corridor_bad_input():
