@@ -15,7 +15,6 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -25,40 +24,12 @@ from shapely.geometry import LineString, MultiLineString
 from ..errors import InputError
 from ..geodesy import WGS84
 from ..timeutil import zone
+from .problems import Problem
 
 LINE_COLUMNS = ["line_id", "name", "height_m", "cfo_kv", "spacing_m", "shielded", "height_defaulted",
                 "cfo_defaulted", "length_km", "feature", "geometry"]
 OUTAGE_COLUMNS = ["outage_id", "time", "line_id", "fault_latitude", "fault_longitude", "device",
                   "clock_tolerance_s", "reclose_times", "source_row", "problem"]
-
-
-@dataclass(frozen=True)
-class Problem:
-    """One rejected or adjusted item of an input file.
-
-    Attributes
-    ----------
-    file : str
-        File name.
-    where : str
-        ``"feature 3"`` or ``"line 7"`` (line numbers count the header as line 1).
-    item_id : str
-        The line's or outage's id when known, else "".
-    message : str
-        One sentence.
-    severity : str
-        ``"rejected"`` (left out of the analysis) or ``"note"`` (used with an adjustment).
-    """
-
-    file: str
-    where: str
-    item_id: str
-    message: str
-    severity: str = "rejected"
-
-    def text(self) -> str:
-        ident = f" ({self.item_id})" if self.item_id else ""
-        return f"{self.file}, {self.where}{ident}: {self.message}"
 
 
 def problems_frame(problems) -> pd.DataFrame:

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import json
 import math
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -17,23 +16,12 @@ import pandas as pd
 
 from ..errors import InputError
 from ..timeutil import parse_user_time
+from .problems import Problem
 
 #: sites.csv columns: required first, then optional.
 SITE_REQUIRED = ("name", "latitude", "longitude")
 SITE_OPTIONAL = ("radius_km", "stop_km", "warn_km", "start", "end", "parcel_file")
 CREW_REQUIRED = ("site", "stopped", "resumed")
-
-
-@dataclass(frozen=True)
-class Problem:
-    """One rejected row: file, line number (header = 1) and the reason in a sentence."""
-
-    path: str
-    line: int
-    reason: str
-
-    def __str__(self) -> str:
-        return f"{self.path}, line {self.line}: {self.reason}"
 
 
 def _read_csv(path, what: str) -> pd.DataFrame:
@@ -94,7 +82,7 @@ def read_sites(path, *, time_zone: str | None = None):
         try:
             rows.append(_site_row(rec, line, time_zone, p.parent))
         except (ValueError, InputError) as e:
-            problems.append(Problem(str(p), line, str(e)))
+            problems.append(Problem.at_line(str(p), line, str(e)))
     cols = ["name", "latitude", "longitude", "radius_km", "stop_km", "warn_km", "start", "end", "parcel_file", "source_row"]
     sites = pd.DataFrame(rows, columns=cols)
     for c in ("latitude", "longitude", "radius_km", "stop_km", "warn_km"):
@@ -177,7 +165,7 @@ def read_crew_log(path, *, time_zone: str | None = None):
                 raise ValueError(f"site {site!r}: resumed before it stopped")
             rows.append({"site": site, "stopped": stopped, "resumed": resumed, "source_row": line})
         except (ValueError, InputError) as e:
-            problems.append(Problem(str(p), line, str(e)))
+            problems.append(Problem.at_line(str(p), line, str(e)))
     log = pd.DataFrame(rows, columns=["site", "stopped", "resumed", "source_row"])
     for c in ("stopped", "resumed"):
         log[c] = pd.to_datetime(log[c], utc=True).astype("datetime64[ns, UTC]")

@@ -437,7 +437,7 @@ def ledger_html(ledger, problems=()) -> str:
     if notes:
         parts.append("<p>Notes:</p>" + bullet_list(notes))
     if problems:
-        rows = [{"file": role, "problem": p.text() if hasattr(p, "text") else str(p)} for role, p in problems]
+        rows = [{"file": role, "problem": p.text()} for role, p in problems]
         parts.append(html_table(pd.DataFrame(rows), caption="Problems in the other input files", max_rows=200))
     return "".join(parts)
 
