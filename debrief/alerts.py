@@ -28,7 +28,7 @@ from .errors import InputError
 from .geodesy import inverse_km
 
 PERIOD_COLUMNS = ("site", "level", "start", "last_stroke", "all_clear", "duration_min", "n_strokes",
-                  "nearest_km", "open_at_end")
+                  "nearest_km", "open_at_end", "open_at_start", "coverage", "coverage_note")
 
 RECORD_NOTE = ("These alert periods are a record reconstructed from the network's data after the "
                "event, not a live warning; networks miss some strokes, lightning can strike beyond "
@@ -59,7 +59,7 @@ def alert_sites(sites: pd.DataFrame) -> pd.DataFrame:
 
 
 def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, stop_km=None, warn_km=None,
-                  all_clear_min=None, include_ic=None, data_end=None) -> pd.DataFrame:
+                  all_clear_min=None, include_ic=None, data_end=None, data_start=None, coverage=None) -> pd.DataFrame:
     """Alert periods at each site, stop level and (when a warning radius is set) warning level.
 
     Parameters
@@ -78,6 +78,12 @@ def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, st
     data_end : Timestamp, optional
         End of the data's coverage (default: the last stroke); a period whose all-clear falls
         after it is ``open_at_end``.
+    data_start : Timestamp, optional
+        Start of the data's coverage (or of the analysis window); a period whose first stroke
+        comes within the all-clear time after it is ``open_at_start``: it may have begun earlier.
+    coverage : debrief.coverage.Coverage, optional
+        States each period's coverage (the stop or warning circle over start to all-clear):
+        ``inside``, ``partial`` or ``outside``, with a note.
 
     Returns
     -------
@@ -109,6 +115,7 @@ def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, st
     clear_ns = np.int64(round(cfg["all_clear_min"] * 60e9))
     t_all = _time_ns(strokes["time"])
     end_ns = int(pd.Timestamp(data_end).tz_convert("UTC").value) if data_end is not None else (int(t_all.max()) if t_all.size else 0)
+    start_ns = int(pd.Timestamp(data_start).tz_convert("UTC").value) if data_start is not None else None
     kinds = strokes["type"].astype(str).to_numpy()
     use = (kinds == "CG") | ((kinds == "IC") & bool(cfg["include_ic"]))
     idx = np.flatnonzero(use)
@@ -138,16 +145,25 @@ def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, st
         m = tw & (d <= rad[si])  # NaN warn radius -> no warning periods
         if not np.any(m):
             continue
-        frames.append(_periods(si[m], t[sj[m]], d[m], clear_ns, end_ns, level))
+        frames.append(_periods(si[m], t[sj[m]], d[m], clear_ns, end_ns, level, start_ns))
     if not frames:
         return _typed(empty)
     per = pd.concat(frames, ignore_index=True)
+    if coverage is not None and len(per):
+        from .coverage import check_places
+
+        k = per["site_index"].to_numpy()
+        rad = np.where(per["level"].to_numpy() == "stop", stop[k], warn[k])
+        cov = check_places(coverage, lat[k], lon[k], rad, per["start"].to_numpy().astype("datetime64[ns]").astype(np.int64),
+                           per["all_clear"].to_numpy().astype("datetime64[ns]").astype(np.int64))
+        per["coverage"] = cov["coverage"].to_numpy()
+        per["coverage_note"] = cov["coverage_note"].to_numpy()
     per.insert(0, "site", sites["name"].to_numpy()[per.pop("site_index").to_numpy()])
     per = per.sort_values(["site", "level", "start"], kind="stable").reset_index(drop=True)
     return _typed(per[list(PERIOD_COLUMNS)])
 
 
-def _periods(site, t_ns, d_km, clear_ns, end_ns, level):
+def _periods(site, t_ns, d_km, clear_ns, end_ns, level, start_ns=None):
     """Vectorised: sort by (site, time); a new period where the site changes or the gap > all-clear."""
     order = np.lexsort((t_ns, site))
     s, t, d = site[order], t_ns[order], d_km[order]
@@ -165,6 +181,9 @@ def _periods(site, t_ns, d_km, clear_ns, end_ns, level):
         "duration_min": (all_clear - t[starts]) / 60e9,
         "n_strokes": np.bincount(pid).astype(np.int64), "nearest_km": nearest,
         "open_at_end": all_clear > end_ns,
+        # A stroke in the all-clear time before the data start would have opened the period earlier.
+        "open_at_start": (t[starts] - clear_ns < start_ns) if start_ns is not None else False,
+        "coverage": "not_checked", "coverage_note": "",
     })
 
 
@@ -175,6 +194,9 @@ def _typed(per: pd.DataFrame) -> pd.DataFrame:
     per["n_strokes"] = per["n_strokes"].astype("int64")
     per["nearest_km"] = per["nearest_km"].astype(float)
     per["open_at_end"] = per["open_at_end"].astype(bool)
+    per["open_at_start"] = per["open_at_start"].astype(bool)
+    for c in ("coverage", "coverage_note"):
+        per[c] = per[c].astype(object)
     per["site"] = per["site"].astype(object)
     per["level"] = per["level"].astype(object)
     return per

@@ -67,6 +67,10 @@ _SCHEMA: dict[str, dict[str, Key]] = {
         "default_uncertainty_km": Key(None, _OPT_NUM, "circular semi-axis at ellipse_confidence for strokes without an ellipse", 0.0, None, True),
         "flash_detection_efficiency": Key(None, _OPT_NUM, "the network's flash detection efficiency (0-1]", 0.0, 1.0, True),
         "flash_detection_efficiency_source": Key(None, _OPT_STR, "where the detection efficiency comes from"),
+        "coverage_start": Key(None, _OPT_STR, "start of the time the stroke file covers, ISO 8601 (default: the first stroke, said so)"),
+        "coverage_end": Key(None, _OPT_STR, "end of the time the stroke file covers, ISO 8601 (default: the last stroke, said so)"),
+        "coverage_bbox": Key(None, (list, type(None)), "area the stroke file covers, [west, south, east, north] in degrees; west > east crosses 180 (default: the strokes' extent, said so)"),
+        "coverage_file": Key(None, _OPT_STR, "GeoJSON Polygon or MultiPolygon of the area the stroke file covers (instead of coverage_bbox)"),
     },
     "grouping": {
         "max_interval_ms": Key(500.0, _NUM, "max time from the previous stroke of the flash", 0.0, None, True),
@@ -232,7 +236,8 @@ def _check(section: str, key: str, value, where: str):
 def _type_word(spec: Key) -> str:
     if int in spec.types and float not in spec.types:
         return "whole number"
-    names = {int: "number", float: "number", str: "string", bool: "true/false", dict: "table", type(None): None}
+    names = {int: "number", float: "number", str: "string", bool: "true/false", dict: "table", list: "array",
+             type(None): None}
     words = sorted({names[t] for t in spec.types if names[t]})
     return " or ".join(words)
 

@@ -75,7 +75,15 @@ VERDICTS = {
                                   "no ground stroke within the clock tolerance and search distance"),
     "not_analysed": ("the outage row has a problem",
                      "the row could not be analysed (see reasons)"),
+    "outside_window": ("the trip time is outside the analysis window",
+                       "not analysed in this window (see reasons)"),
+    "outside_coverage": ("the trip time (with its clock tolerance) or the line lies outside the data's coverage",
+                         "the stroke data do not cover it: no conclusion"),
 }
+
+#: Internal markers of outages set aside before matching (verdicts of the same name).
+OUTSIDE_WINDOW = "outside_window"
+OUTSIDE_COVERAGE = "outside_coverage"
 
 #: The order in which verdicts are listed (strongest first).
 VERDICT_ORDER = tuple(VERDICTS)
@@ -104,14 +112,17 @@ CANDIDATE_COLUMNS = [
     "fault_distance_m", "y_min_m", "y_fo_m", "mechanism_at_position", "induced_kv", "p_within_corridor",
     "p_direct", "p_induced_fo", "p_direct_low_current", "p_induced_fo_low_current",
     "p_direct_high_current", "p_induced_fo_high_current", "location_error", "likely_ic",
+    "ground_contact", "contact_n_strokes", "contact_distance_m", "contact_p_within_corridor", "contact_p_direct",
+    "contact_p_induced_fo", "contact_p_direct_low_current", "contact_p_induced_fo_low_current",
+    "contact_p_direct_high_current", "contact_p_induced_fo_high_current",
 ]
 
 
 _BEST = ("stroke_time", "peak_current_ka", "dt_s", "distance_m", "p_within_corridor", "p_direct",
-         "p_induced_fo", "induced_kv", "latitude", "longitude", "flash_id")
+         "p_induced_fo", "induced_kv", "latitude", "longitude", "flash_id", "contact_n_strokes")
 VERDICT_COLUMNS = ["outage_id", "line_id", "time", "device", "clock_tolerance_s", "verdict", "reasons",
-                   "n_candidates", "p_any", "verdict_low_current", "verdict_high_current",
-                   "current_sensitive"] + ["best_" + c for c in _BEST]
+                   "n_candidates", "n_contacts", "p_any", "coverage", "coverage_note", "verdict_low_current",
+                   "verdict_high_current", "current_sensitive"] + ["best_" + c for c in _BEST]
 
 
 def _settings(config):
@@ -326,7 +337,8 @@ def _candidate_pairs(t_ns, outages, lc):
     return po, starts + offs
 
 
-def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFrame, config=None) -> OutageMatch:
+def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFrame, config=None, *,
+                  window=None, coverage=None) -> OutageMatch:
     """Match outages to candidate strokes and give each outage a verdict.
 
     Parameters
@@ -341,10 +353,25 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
         As :func:`debrief.io.lines.read_lines` returns it.
     config : EventConfig, optional
         ``[lines]`` settings, ``ellipse_confidence``, ``default_uncertainty_km``.
+    window : (Timestamp, Timestamp), optional
+        The analysis window: an outage whose trip falls outside it gets the verdict
+        ``outside_window`` and is not analysed. An outage inside it is matched against every
+        stroke within its clock tolerance, even one a few seconds past the window's edge.
+    coverage : debrief.coverage.Coverage, optional
+        The data's coverage: an outage whose time or line lies outside it gets
+        ``outside_coverage`` (no conclusion); ``partial`` is stated in the reasons.
 
     Returns
     -------
     OutageMatch
+
+    Notes
+    -----
+    The strokes of one ground contact are combined into one position fix
+    (:mod:`debrief.contacts`) and the corridor probabilities of the verdict are the contact's:
+    position from every stroke of the channel, peak current from its strongest candidate stroke
+    (the zones widen with current). ``p_any`` treats contacts (not strokes) as independent. Each
+    candidate row keeps its own stroke's probabilities beside the contact's (``contact_*``).
 
     References
     ----------
@@ -372,6 +399,33 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
     problem = outages["problem"].fillna("").astype(str).to_numpy() if "problem" in outages else np.full(len(outages), "")
     problem = np.array([p if p or lid in line_pos else f"line {lid!r} is not among the usable lines"
                         for p, lid in zip(problem, outages["line_id"])], dtype=object)
+    cov_state = np.full(len(outages), "inside" if coverage is not None else "not_checked", dtype=object)
+    cov_note = np.full(len(outages), "", dtype=object)
+    t_trip = pd.to_datetime(outages["time"], utc=True)
+    if window is not None:
+        w0, w1 = window
+        out_w = ((t_trip < w0) | (t_trip > w1)).to_numpy() & (problem == "")
+        problem = np.where(out_w, OUTSIDE_WINDOW, problem).astype(object)
+    if coverage is not None and len(outages):
+        from .coverage import check_lines, combine
+
+        by_line = check_lines(coverage, lines, lc["search_km"]).set_index("line_id") if len(lines) else None
+        tol = outages["clock_tolerance_s"].to_numpy(float)
+        tol = np.where(np.isfinite(tol), tol, lc["clock_tolerance_s"])
+        for i in range(len(outages)):
+            if problem[i] or pd.isna(t_trip.iloc[i]):
+                continue
+            a = t_trip.iloc[i] - pd.Timedelta(seconds=float(tol[i]))
+            b = t_trip.iloc[i] + pd.Timedelta(seconds=float(tol[i]))
+            state, note_ = _span_state(coverage, a, b)
+            lid = outages["line_id"].iloc[i]
+            if by_line is not None and lid in by_line.index:
+                ls, ln = by_line.loc[lid, "coverage"], by_line.loc[lid, "coverage_note"]
+                state = combine(state, ls)
+                note_ = "; ".join(x for x in (note_, ln) if x)
+            cov_state[i], cov_note[i] = state, note_
+            if state == "outside":
+                problem[i] = OUTSIDE_COVERAGE
     good = np.flatnonzero(problem == "")
     og = outages.iloc[good].reset_index(drop=True)
 
@@ -396,6 +450,7 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
                 & (slon >= lon_lo[po] - dlon[po]) & (slon <= lon_hi[po] + dlon[po]))
         po, ps = po[keep], ps[keep]
         cand = _evaluate_pairs(po, ps, og, li, lines, strokes, t_all, config, lc, has_fault)
+        cand = _contact_probabilities(cand, strokes, lines, config, lc)
     for k in range(len(lines)):
         row = lines.iloc[k]
         if row.get("height_defaulted", False):
@@ -405,7 +460,7 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
     if len(cand) and (cand["location_error"] == "none").any():
         notes.append("some candidates have no error ellipse and no default_uncertainty_km is set: "
                      "their probabilities are 0 or 1 from the reported position alone")
-    verdicts = _verdicts(outages, problem, cand, lines, lc)
+    verdicts = _verdicts(outages, problem, cand, lines, lc, cov_state, cov_note)
     return OutageMatch(candidates=cand, verdicts=verdicts, cautions=list(CAUTIONS), notes=notes)
 
 
@@ -469,7 +524,7 @@ def _evaluate_pairs(po, ps, og, li, lines, strokes, t_all, config, lc, has_fault
         })
         frames.append(frame)
     if not frames:
-        return pd.DataFrame(columns=CANDIDATE_COLUMNS)
+        return pd.DataFrame(columns=["outage_pos"] + CANDIDATE_COLUMNS)
     c = pd.concat(frames, ignore_index=True)
     d = c["distance_m"].to_numpy()
     c["mechanism_at_position"] = np.where(d < c["y_min_m"], "direct", np.where(d < c["y_fo_m"], "induced", "none"))
@@ -481,7 +536,85 @@ def _evaluate_pairs(po, ps, og, li, lines, strokes, t_all, config, lc, has_fault
                       ascending=[True, False, True, True], kind="stable")
     c["rank"] = c.groupby("outage_pos").cumcount() + 1
     c["stroke_time"] = pd.to_datetime(c["stroke_time"], utc=True).astype("datetime64[ns, UTC]")
-    return c.drop(columns=["_abs_dt", "_p"]).reset_index(drop=True)[["outage_pos"] + CANDIDATE_COLUMNS]
+    return c.drop(columns=["_abs_dt", "_p"]).reset_index(drop=True)
+
+
+def _span_state(coverage, a, b):
+    from .coverage import check_span
+
+    return check_span(coverage, a, b)
+
+
+_CONTACT_P = ("p_within_corridor", "p_direct", "p_induced_fo", "p_direct_low_current", "p_induced_fo_low_current",
+              "p_direct_high_current", "p_induced_fo_high_current")
+
+
+def _contact_probabilities(c: pd.DataFrame, strokes: pd.DataFrame, lines: pd.DataFrame, config, lc) -> pd.DataFrame:
+    """Add the ground contact's corridor probabilities to every candidate row and rank on them.
+
+    The strokes of one contact are combined into one fix (:func:`debrief.contacts.contact_fixes`,
+    every ground stroke of the file, likely cloud pulses included as they are candidates too);
+    its current is that of the contact's strongest candidate stroke.
+    Rows without a contact (cloud pulses, ungrouped input) keep their stroke's own figures.
+    """
+    from .contacts import contact_fixes
+
+    if not len(c):
+        return c
+    for col in _CONTACT_P:
+        c["contact_" + col] = c[col].to_numpy(float)
+    c["contact_distance_m"] = c["distance_m"].to_numpy(float)
+    c["contact_n_strokes"] = 1
+    c["ground_contact"] = (strokes["ground_contact"].to_numpy(np.int64)[c["stroke_index"].to_numpy()]
+                           if "ground_contact" in strokes else 0)
+    have = c["ground_contact"].to_numpy() > 0
+    if np.any(have):
+        contacts = contact_fixes(strokes, config, include_likely_ic=True)
+        key = contacts["flash_id"].to_numpy(np.int64) * (1 << 20) + contacts["ground_contact"].to_numpy(np.int64)
+        pos_of = pd.Series(np.arange(len(contacts)), index=key)
+        rows = np.flatnonzero(have)
+        ck = pd.to_numeric(c["flash_id"].to_numpy()[rows]).astype(np.int64) * (1 << 20) + c["ground_contact"].to_numpy()[rows]
+        cpos = pos_of.reindex(ck).to_numpy()
+        ok = np.isfinite(cpos)
+        rows, cpos = rows[ok], cpos[ok].astype(np.int64)
+        # One evaluation per (outage, contact) at the contact's strongest candidate stroke: the
+        # zones widen with current, so the channel lies in some stroke's zone exactly when it
+        # lies in the strongest one's.
+        sub = pd.DataFrame({"row": rows, "o": c["outage_pos"].to_numpy()[rows], "k": cpos,
+                            "i": -np.abs(c["peak_current_ka"].to_numpy(float)[rows]),
+                            "a": np.abs(c["dt_op_s"].to_numpy(float)[rows])})
+        pick = sub.sort_values(["o", "k", "i", "a", "row"], kind="stable").groupby(["o", "k"], sort=False).head(1)
+        fx = contacts.iloc[pick["k"].to_numpy()]
+        pseudo = pd.DataFrame({
+            "latitude": fx["latitude"].to_numpy(), "longitude": fx["longitude"].to_numpy(),
+            "peak_current_ka": c["peak_current_ka"].to_numpy(float)[pick["row"].to_numpy()],
+            "semi_major_km": fx["semi_major_km"].to_numpy(), "semi_minor_km": fx["semi_minor_km"].to_numpy(),
+            "major_bearing_deg": fx["major_bearing_deg"].to_numpy(),
+        })
+        line_of = c["line_id"].to_numpy()[pick["row"].to_numpy()]
+        vals = {col: np.full(len(pick), np.nan) for col in _CONTACT_P + ("distance_m",)}
+        for lid in pd.unique(line_of):
+            m = np.flatnonzero(line_of == lid)
+            line = lines[lines["line_id"] == lid].iloc[0]
+            res = stroke_line_physics(pseudo.iloc[m], line, config)
+            for col in vals:
+                vals[col][m] = res[col]
+        g = pd.DataFrame({"o": pick["o"].to_numpy(), "k": pick["k"].to_numpy(),
+                          "n": fx["n_strokes"].to_numpy(), **vals})
+        merged = sub.merge(g, on=["o", "k"], how="left")
+        r = merged["row"].to_numpy()
+        for col in _CONTACT_P:
+            c.loc[r, "contact_" + col] = merged[col].to_numpy()
+        c.loc[r, "contact_distance_m"] = merged["distance_m"].to_numpy()
+        c.loc[r, "contact_n_strokes"] = merged["n"].to_numpy()
+    # Rank by the contact's probability, then within a contact by the stroke's own.
+    c["_abs_dt"] = c["dt_op_s"].abs()
+    c["_p"] = c["contact_p_within_corridor"].round(6)
+    c["_ps"] = c["p_within_corridor"].round(6)
+    c = c.sort_values(["outage_pos", "_p", "_ps", "_abs_dt", "distance_m"], ascending=[True, False, False, True, True],
+                      kind="stable")
+    c["rank"] = c.groupby("outage_pos").cumcount() + 1
+    return c.drop(columns=["_abs_dt", "_p", "_ps"]).reset_index(drop=True)[["outage_pos"] + CANDIDATE_COLUMNS]
 
 
 def classify(p_direct, p_induced_fo, has_candidate, *, likely_p=0.5, possible_p=0.1):
@@ -498,15 +631,15 @@ def classify(p_direct, p_induced_fo, has_candidate, *, likely_p=0.5, possible_p=
 
 
 def _best_at(cand, sfx):
-    """Per outage position: (p_direct, p_induced_fo) of the best candidate at a current factor."""
-    tot = (cand["p_direct" + sfx] + cand["p_induced_fo" + sfx]).round(6)
+    """Per outage position: (p_direct, p_induced_fo) of the best contact at a current factor."""
+    tot = (cand["contact_p_direct" + sfx] + cand["contact_p_induced_fo" + sfx]).round(6)
     tmp = pd.DataFrame({"o": cand["outage_pos"], "t": tot, "a": cand["dt_op_s"].abs(), "d": cand["distance_m"],
-                        "pd": cand["p_direct" + sfx], "pi": cand["p_induced_fo" + sfx]})
+                        "pd": cand["contact_p_direct" + sfx], "pi": cand["contact_p_induced_fo" + sfx]})
     tmp = tmp.sort_values(["o", "t", "a", "d"], ascending=[True, False, True, True], kind="stable")
     return tmp.groupby("o").first()[["pd", "pi"]]
 
 
-def _verdicts(outages, problem, cand, lines, lc):
+def _verdicts(outages, problem, cand, lines, lc, cov_state=None, cov_note=None):
     likely, possible = lc["likely_p"], lc["possible_p"]
     good = np.flatnonzero(problem == "")
     n_good = len(good)
@@ -516,8 +649,8 @@ def _verdicts(outages, problem, cand, lines, lc):
     if len(best):
         pos = best.index.to_numpy()
         has[pos] = True
-        pdir[pos] = best["p_direct"].to_numpy(float)
-        pind[pos] = best["p_induced_fo"].to_numpy(float)
+        pdir[pos] = best["contact_p_direct"].to_numpy(float)
+        pind[pos] = best["contact_p_induced_fo"].to_numpy(float)
     verdict = classify(pdir, pind, has, likely_p=likely, possible_p=possible)
     alt = {}
     for sfx in ("_low_current", "_high_current"):
@@ -529,10 +662,22 @@ def _verdicts(outages, problem, cand, lines, lc):
         alt[sfx] = classify(a, b_, has, likely_p=likely, possible_p=possible)
     p_any = np.zeros(n_good)
     n_c = np.zeros(n_good, np.int64)
+    n_k = np.zeros(n_good, np.int64)
     if len(cand):
         g = cand.groupby("outage_pos")
-        p_any[g.size().index.to_numpy()] = (1.0 - g["p_within_corridor"].apply(lambda s: float(np.prod(1.0 - s.to_numpy(float))))).to_numpy()
         n_c[g.size().index.to_numpy()] = g.size().to_numpy()
+        # Contacts, not strokes, are the independent events: one probability per contact.
+        fid = pd.to_numeric(cand["flash_id"], errors="coerce").fillna(-1).to_numpy(np.int64)
+        gc = cand["ground_contact"].to_numpy(np.int64)
+        solo = gc <= 0  # no contact: the stroke is its own event
+        key = np.where(solo, -(cand["stroke_index"].to_numpy(np.int64) + 1), fid * (1 << 20) + gc)
+        per = pd.DataFrame({"o": cand["outage_pos"].to_numpy(), "k": key,
+                            "p": cand["contact_p_within_corridor"].to_numpy(float)}).drop_duplicates(["o", "k"])
+        with np.errstate(divide="ignore"):
+            per["l"] = np.log1p(-np.clip(per["p"].to_numpy(), 0.0, 1.0))
+        agg = per.groupby("o").agg(l=("l", "sum"), n=("k", "size"))
+        p_any[agg.index.to_numpy()] = 0.0 - np.expm1(agg["l"].to_numpy())
+        n_k[agg.index.to_numpy()] = agg["n"].to_numpy()
     rows = []
     gi = {int(k): j for j, k in enumerate(good)}
     best_rec = best.to_dict("index") if len(best) else {}
@@ -540,10 +685,21 @@ def _verdicts(outages, problem, cand, lines, lc):
     for i, o in enumerate(outages.to_dict("records")):
         tol = o["clock_tolerance_s"] if np.isfinite(o["clock_tolerance_s"]) else lc["clock_tolerance_s"]
         base = {"outage_id": o["outage_id"], "line_id": o["line_id"], "time": o["time"], "device": o.get("device", ""),
-                "clock_tolerance_s": tol}
+                "clock_tolerance_s": tol,
+                "coverage": cov_state[i] if cov_state is not None else "not_checked",
+                "coverage_note": cov_note[i] if cov_note is not None else ""}
+        if problem[i] in (OUTSIDE_WINDOW, OUTSIDE_COVERAGE):
+            why = (f"the trip at {iso_utc(o['time'])} is outside the analysis window; analyse a window that holds it"
+                   if problem[i] == OUTSIDE_WINDOW else
+                   f"outside the data's coverage ({base['coverage_note']}): the stroke data cannot say whether "
+                   "lightning was involved")
+            rows.append(base | {"verdict": problem[i], "reasons": why, "n_candidates": 0, "n_contacts": 0,
+                                "p_any": np.nan, "verdict_low_current": problem[i],
+                                "verdict_high_current": problem[i], "current_sensitive": False})
+            continue
         if problem[i]:
             rows.append(base | {"verdict": "not_analysed", "reasons": f"not analysed: {problem[i]}", "n_candidates": 0,
-                                "p_any": np.nan, "verdict_low_current": "not_analysed",
+                                "n_contacts": 0, "p_any": np.nan, "verdict_low_current": "not_analysed",
                                 "verdict_high_current": "not_analysed", "current_sensitive": False})
             continue
         j = gi[i]
@@ -556,10 +712,14 @@ def _verdicts(outages, problem, cand, lines, lc):
             zone_text = (f"direct-strike zone within {ymin:.0f} m, induced-flashover band {ymin:.0f}-{yfo:.0f} m"
                          if yfo > ymin else
                          f"direct-strike zone within {ymin:.0f} m; no induced flashover beyond it (1.5 CFO reached only within {yfo:.0f} m)")
-            reasons.append(f"P(direct strike) {bc['p_direct']:.2f}, P(induced flashover) {bc['p_induced_fo']:.2f} "
-                           f"at {abs(bc['peak_current_ka']):.0f} kA ({zone_text})")
-            if n_c[j] > 1:
-                reasons.append(f"{n_c[j]} candidate strokes; P(at least one in the corridor) {p_any[j]:.2f}")
+            k_str = int(bc["contact_n_strokes"])
+            how = (f"the {k_str} strokes of its ground contact combined into one position fix, "
+                   f"{bc['contact_distance_m']:.0f} m from the line" if k_str > 1 else "a single-stroke contact")
+            reasons.append(f"P(direct strike) {bc['contact_p_direct']:.2f}, P(induced flashover) "
+                           f"{bc['contact_p_induced_fo']:.2f} at {abs(bc['peak_current_ka']):.0f} kA ({how}; {zone_text})")
+            if n_k[j] > 1:
+                reasons.append(f"{n_c[j]} candidate strokes in {n_k[j]} ground contacts; taking contacts as independent, "
+                               f"P(at least one in the corridor) {p_any[j]:.2f}")
             if bc["location_error"] == "none":
                 reasons.append("the stroke has no error ellipse: judged on its reported position alone")
             elif bc["location_error"] == "default":
@@ -583,10 +743,15 @@ def _verdicts(outages, problem, cand, lines, lc):
                 reasons.append("unchanged for a peak current 30% lower or higher")
         if bool(shielded.get(o["line_id"], False)):
             reasons.append("the line is marked shielded; shielding is not modelled")
-        rec = base | {"verdict": v, "reasons": "; ".join(reasons), "n_candidates": int(n_c[j]), "p_any": p_any[j],
+        if base["coverage"] == "partial":
+            reasons.append(f"the data cover this outage only in part ({base['coverage_note']})"
+                           + ("; a stroke in the uncovered part would not be seen" if not has[j] else ""))
+        rec = base | {"verdict": v, "reasons": "; ".join(reasons), "n_candidates": int(n_c[j]),
+                      "n_contacts": int(n_k[j]), "p_any": p_any[j],
                       "verdict_low_current": lo_v, "verdict_high_current": hi_v, "current_sensitive": sensitive}
         for col in _BEST:
-            rec["best_" + col] = best_rec[j][col] if has[j] else (pd.NaT if col == "stroke_time" else np.nan)
+            src = "contact_" + col if col in ("p_within_corridor", "p_direct", "p_induced_fo") else col
+            rec["best_" + col] = best_rec[j][src] if has[j] else (pd.NaT if col == "stroke_time" else np.nan)
         rows.append(rec)
     out = pd.DataFrame(rows, columns=VERDICT_COLUMNS)
     out["time"] = pd.to_datetime(out["time"], utc=True).astype("datetime64[ns, UTC]")

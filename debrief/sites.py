@@ -8,17 +8,27 @@ ellipse, not a fixed guess). Each candidate gets its geodesic distance and beari
 and ``p_within``, the probability under the bivariate-normal error model that its true point lies
 within the radius.
 
-Summary probability: ``p_any_within`` is the probability that at least one ground contact
-terminated within the radius, counting ground strokes only (low-amplitude positives flagged
-``likely_ic`` are left out unless asked), taking the strokes of one ground contact
-``(flash_id, ground_contact)`` together (their largest probability: they share one channel), and
-treating different contacts as independent: ``1 - prod(1 - p_contact)``.
+Summary probability: the strokes of one ground contact ``(flash_id, ground_contact)`` share one
+channel, so their reported positions are repeated measurements of one point. They are combined
+into one fix by inverse-covariance weighting (:mod:`debrief.contacts`; flat prior, errors taken
+as independent between strokes), and ``p_within`` of that fix is the contact's probability.
+``p_any_within`` is the probability that at least one ground contact terminated within the
+radius, treating different contacts as independent: ``1 - prod(1 - p_contact)``;
+``max_p_within`` is the largest contact probability. Only ground strokes count (low-amplitude
+positives flagged ``likely_ic`` are left out unless asked, and the answer says what was set
+aside). Each candidate stroke keeps its own ``p_within`` in the candidate table.
+
+Coverage: with a :class:`debrief.coverage.Coverage`, every answer states whether the data cover
+the site's circle and period (``inside``/``partial``/``outside``). Outside, the answer is "no
+conclusion", with no probability and no unrecorded-flash chance.
 
 When nothing is found the network may still have missed a flash. With flash detection
 efficiency DE, the expected number of unrecorded ground flashes in the circle is
 ``lambda = rho * A * (1 - DE) / DE`` with ``rho`` the density of recorded ground flashes in an
 annulus about the site (from the radius out to 10 km) during the window and ``A`` the circle's
-area; the chance of at least one is ``1 - exp(-lambda)`` (Poisson).
+area; the chance of at least one is ``1 - exp(-lambda)`` (Poisson). An upper bound is stated beside it,
+from the exact one-sided 95 % Poisson limit of the ring's count ([Garwood1936]); with no flash
+recorded in the ring only that bound is stated ([Hanley1983]: about 3 / area at 95 %).
 
 Planar offsets are azimuthal equidistant about the site (``dx = d sin(az)``, ``dy = d cos(az)``
 from the WGS84 geodesic), the same plane as :class:`debrief.geodesy.LocalPlane`.
@@ -49,6 +59,11 @@ from .uncertainty import ellipse_outline_xy, p_within_circle, p_within_polygon, 
 SEARCH_TAIL = 1e-6
 #: Outer radius of the annulus whose recorded ground-flash density sets the residual chance, km.
 DENSITY_RING_KM = 10.0
+#: Radius of the neighbourhood whose nearest ground stroke and largest |peak current| every
+#: answer states, even when nothing falls within the site's radius, km (a setting of ours).
+CONTEXT_KM = 10.0
+#: One-sided confidence of the stated upper bound of the unrecorded-flash chance.
+RESIDUAL_UPPER_CONFIDENCE = 0.95
 
 CAUTIONS = [
     "Lightning location networks miss some strokes and mislocate others; the network's detection "
@@ -74,7 +89,7 @@ class SiteResult:
     ----------
     name : str
     candidates : DataFrame
-        One row per candidate stroke (see :func:`check_site`).
+        One row per candidate stroke (see :func:`check_site`), each with its own ``p_within``.
     summary : dict
         ``n_candidates``, ``n_ground_within``, ``nearest_km``, ``max_p_within``, ``p_any_within``,
         ``n_contacts``, the site, radius and window, and parcel figures when a parcel was given.
@@ -82,6 +97,9 @@ class SiteResult:
         Plain text for a claim letter.
     residual : dict or None
         Inputs and result of the unrecorded-flash chance, None without a detection efficiency.
+    contacts : DataFrame
+        One row per candidate ground contact: the combined fix of its strokes and its
+        ``p_within`` (what ``p_any_within`` and ``max_p_within`` are made of).
     cautions : list of str
     """
 
@@ -90,6 +108,7 @@ class SiteResult:
     summary: dict
     sentence: str
     residual: dict | None
+    contacts: pd.DataFrame | None = None
     cautions: list = field(default_factory=lambda: list(CAUTIONS))
 
     def to_dict(self) -> dict:
@@ -285,7 +304,14 @@ def _candidates(index: StrokeIndex, lat, lon, radius, t0, t1, extra_search_km=No
     si, sj = si[keep], sj[keep]
     d_km, b_deg = inverse_km(lat[si], lon[si], index.lat[sj], index.lon[sj])
     uniq, inv = np.unique(sj, return_inverse=True)
-    sxx_u, syy_u, sxy_u, filled_u = stroke_covariance(index.strokes.iloc[uniq], index.config)
+    if "sxx_km2" in index.strokes.columns:  # a contact table carries its combined covariance
+        sub = index.strokes.iloc[uniq]
+        sxx_u, syy_u, sxy_u = (sub[c].to_numpy(dtype=float) for c in ("sxx_km2", "syy_km2", "sxy_km2"))
+        filled_u = sub["ellipse_from_default"].to_numpy(dtype=bool)
+        if np.any(~np.isfinite(sxx_u)):
+            stroke_covariance(sub[~np.isfinite(sxx_u)], index.config)  # raises: no ellipse and no default
+    else:
+        sxx_u, syy_u, sxy_u, filled_u = stroke_covariance(index.strokes.iloc[uniq], index.config)
     sxx, syy, sxy, filled = sxx_u[inv], syy_u[inv], sxy_u[inv], filled_u[inv]
     reach = reach_km(sxx, syy, sxy, SEARCH_TAIL)
     br = np.radians(b_deg)
@@ -317,7 +343,7 @@ def _candidates(index: StrokeIndex, lat, lon, radius, t0, t1, extra_search_km=No
                 p_parcel[m] = np.clip(acc, 0.0, 1.0)
     st = index.strokes
     cols = {
-        "site_index": si,
+        "site_index": si, "stroke_row": sj,
         "time": pd.to_datetime(index.t_ns[sj], utc=True),
         "latitude": index.lat[sj], "longitude": index.lon[sj],
         "peak_current_ka": index.peak_ka[sj],
@@ -340,29 +366,26 @@ def _candidates(index: StrokeIndex, lat, lon, radius, t0, t1, extra_search_km=No
 
 
 def _p_any(cand: pd.DataFrame, col: str, eligible: np.ndarray, n_sites: int):
-    """Per site: 1 - prod over contacts (1 - max p of the contact), and the number of contacts."""
+    """Per site: ``1 - prod(1 - p)`` over eligible contact rows, and the number of contacts.
+
+    Each row of `cand` is one ground contact (its strokes already combined into one fix), and
+    contacts are taken as independent.
+    """
     site = cand["site_index"].to_numpy()[eligible]
-    fid = cand["flash_id"].to_numpy()[eligible]
-    gc = cand["ground_contact"].to_numpy()[eligible]
-    p = np.minimum(cand[col].to_numpy(dtype=float)[eligible], 1.0)
+    p = np.clip(cand[col].to_numpy(dtype=float)[eligible], 0.0, 1.0)
     if site.size == 0:
         return np.zeros(n_sites), np.zeros(n_sites, dtype=np.int64)
-    order = np.lexsort((gc, fid, site))
-    site, fid, gc, p = site[order], fid[order], gc[order], p[order]
-    new = np.ones(site.size, dtype=bool)
-    new[1:] = (site[1:] != site[:-1]) | (fid[1:] != fid[:-1]) | (gc[1:] != gc[:-1])
-    starts = np.flatnonzero(new)
-    p_contact = np.maximum.reduceat(p, starts)  # strokes of one contact share a channel: the largest
-    owner = site[starts]
     with np.errstate(divide="ignore"):  # a certain contact gives log(0) = -inf -> p_any = 1
-        log_none = np.log1p(-p_contact)
+        log_none = np.log1p(-p)
     total = np.zeros(n_sites)
-    np.add.at(total, owner, log_none)
-    return 0.0 - np.expm1(total), np.bincount(owner, minlength=n_sites).astype(np.int64)  # 0.0 - : no -0.0
+    np.add.at(total, site, log_none)
+    return 0.0 - np.expm1(total), np.bincount(site, minlength=n_sites).astype(np.int64)  # 0.0 - : no -0.0
 
 
 def _residual(index, lat, lon, radius, t0, t1, area_km2, de, de_source, include_likely_ic):
-    """Unrecorded-flash chance per site (dict of arrays)."""
+    """Unrecorded-flash chance per site (dict of arrays), with a one-sided upper bound."""
+    from scipy.stats import chi2
+
     sel, tree = index.first_ground(include_likely_ic)
     inner = np.asarray(radius, dtype=float)
     outer = np.maximum(DENSITY_RING_KM, 2.0 * inner)
@@ -379,12 +402,19 @@ def _residual(index, lat, lon, radius, t0, t1, area_km2, de, de_source, include_
         count = np.bincount(si[ok], minlength=lat.size)
     ring_area = math.pi * (outer**2 - inner**2)
     density = count / ring_area
-    lam = density * area_km2 * (1.0 - de) / de
+    scale = area_km2 * (1.0 - de) / de
+    lam = density * scale
+    # Exact (Garwood) one-sided upper limit of a Poisson mean after `count` events: with none
+    # recorded the density is bounded, not estimated ([Garwood1936]; 3.0 for 95 %, [Hanley1983]).
+    upper_count = chi2.ppf(RESIDUAL_UPPER_CONFIDENCE, 2 * count + 2) / 2.0
+    lam_up = upper_count / ring_area * scale
     return {
         "ring_inner_km": inner, "ring_outer_km": outer, "n_ground_flashes_in_ring": count,
         "ring_area_km2": ring_area, "density_per_km2": density, "area_km2": area_km2,
         "detection_efficiency": np.full(lat.size, de), "de_source": de_source,
         "expected_unrecorded": lam, "p_unrecorded": -np.expm1(-lam),
+        "upper_confidence": np.full(lat.size, RESIDUAL_UPPER_CONFIDENCE),
+        "expected_unrecorded_upper": lam_up, "p_unrecorded_upper": -np.expm1(-lam_up),
     }
 
 
@@ -431,49 +461,106 @@ def _parcel_in_plane(parcel, lat, lon):
     return polys, extent
 
 
-def _summaries(index, cand, lat, lon, radius, t0, t1, include_likely_ic, de, de_source, parcels=None):
+def _eligible(cand: pd.DataFrame, include_likely_ic: bool) -> np.ndarray:
+    return (cand["type"].to_numpy() == "CG") & (include_likely_ic | ~cand["likely_ic"].to_numpy(dtype=bool))
+
+
+def _best_per_site(values: np.ndarray, site: np.ndarray, rows: np.ndarray, n: int):
+    """Per site: the row with the largest value (earliest row on ties) and that value."""
+    best = np.full(n, -1, dtype=np.int64)
+    top = np.zeros(n)
+    if rows.size:
+        order = np.lexsort((rows, -values[rows], site[rows]))
+        srt = site[rows][order]
+        first = np.ones(srt.size, dtype=bool)
+        first[1:] = srt[1:] != srt[:-1]
+        best[srt[first]] = rows[order][first]
+        top[srt[first]] = values[rows][order][first]
+    return best, top
+
+
+def _context(index: StrokeIndex, lat, lon, t0, t1, include_likely_ic):
+    """Per site: eligible ground strokes within CONTEXT_KM in the window (count, nearest, largest |Ip|)."""
     n = lat.size
-    eligible = (cand["type"].to_numpy() == "CG") & (include_likely_ic | ~cand["likely_ic"].to_numpy(dtype=bool))
+    out = {"n_ground_within_context": np.zeros(n, np.int64), "nearest_ground_km": np.full(n, np.nan),
+           "nearest_ground_bearing_deg": np.full(n, np.nan), "nearest_ground_peak_ka": np.full(n, np.nan),
+           "nearest_ground_row": np.full(n, -1, np.int64), "max_abs_peak_ka_context": np.full(n, np.nan)}
+    si, sj = index.pairs(lat, lon, CONTEXT_KM)
+    ok = index.is_cg[sj] & (include_likely_ic | ~index.likely_ic[sj])
+    ok &= (index.t_ns[sj] >= t0[si]) & (index.t_ns[sj] <= t1[si])
+    si, sj = si[ok], sj[ok]
+    ok = haversine_km(lat[si], lon[si], index.lat[sj], index.lon[sj]) <= CONTEXT_KM * 1.01 + 0.05
+    si, sj = si[ok], sj[ok]
+    d, b = inverse_km(lat[si], lon[si], index.lat[sj], index.lon[sj])
+    ok = d <= CONTEXT_KM
+    si, sj, d, b = si[ok], sj[ok], d[ok], b[ok]
+    if not si.size:
+        return out
+    out["n_ground_within_context"] = np.bincount(si, minlength=n).astype(np.int64)
+    rows = np.arange(si.size)
+    near, _ = _best_per_site(-d, si, rows, n)
+    has = near >= 0
+    out["nearest_ground_km"][has] = d[near[has]]
+    out["nearest_ground_bearing_deg"][has] = b[near[has]]
+    out["nearest_ground_peak_ka"][has] = index.peak_ka[sj[near[has]]]
+    out["nearest_ground_row"][has] = sj[near[has]]
+    big = np.full(n, -np.inf)
+    np.maximum.at(big, si, np.abs(index.peak_ka[sj]))
+    out["max_abs_peak_ka_context"] = np.where(np.isfinite(big), big, np.nan)
+    return out
+
+
+def _summaries(index, cand, ccand, lat, lon, radius, t0, t1, include_likely_ic, de, de_source, parcels=None):
+    """Per-site figures: stroke counts from `cand` (strokes), probabilities from `ccand` (contacts)."""
+    n = lat.size
+    eligible = _eligible(cand, include_likely_ic)
     si = cand["site_index"].to_numpy()
-    within = eligible & (cand["distance_km"].to_numpy() <= radius[si])
-    p_any, n_contacts = _p_any(cand, "p_within", eligible, n)
+    dist = cand["distance_km"].to_numpy()
+    within = eligible & (dist <= radius[si])
     out = pd.DataFrame({
         "n_candidates": np.bincount(si, minlength=n),
         "n_ground_candidates": np.bincount(si[eligible], minlength=n),
         "n_ground_within": np.bincount(si[within], minlength=n),
-        "n_contacts": n_contacts,
     })
     nearest = np.full(n, np.inf)
-    np.minimum.at(nearest, si[eligible], cand["distance_km"].to_numpy()[eligible])
-    nearest[~np.isfinite(nearest)] = np.nan
-    maxp = np.zeros(n)
-    best = np.full(n, -1, dtype=np.int64)
-    rows = np.flatnonzero(eligible)
-    if rows.size:
-        pv = cand["p_within"].to_numpy()[rows]
-        order = np.lexsort((rows, -pv, si[rows]))  # per site: largest p, then the earliest row
-        srt = si[rows][order]
-        first = np.ones(srt.size, dtype=bool)
-        first[1:] = srt[1:] != srt[:-1]
-        best[srt[first]] = rows[order][first]
-        maxp[srt[first]] = pv[order][first]
-    out["nearest_km"] = nearest
+    np.minimum.at(nearest, si[eligible], dist[eligible])
+    out["nearest_km"] = np.where(np.isfinite(nearest), nearest, np.nan)
+    _, out["max_p_within_stroke"] = _best_per_site(cand["p_within"].to_numpy(), si, np.flatnonzero(eligible), n)
+    # Set aside: low-amplitude positive ground reports within the radius, left out as likely cloud pulses.
+    aside = (cand["type"].to_numpy() == "CG") & cand["likely_ic"].to_numpy(dtype=bool) & (dist <= radius[si])
+    if include_likely_ic:
+        aside[:] = False
+    out["n_set_aside_within"] = np.bincount(si[aside], minlength=n)
+    near_aside, _ = _best_per_site(-dist, si, np.flatnonzero(aside), n)
+    has = near_aside >= 0
+    for col, src in (("set_aside_nearest_km", "distance_km"), ("set_aside_peak_ka", "peak_current_ka"),
+                     ("set_aside_p_within", "p_within")):
+        v = np.full(n, np.nan)
+        v[has] = cand[src].to_numpy(dtype=float)[near_aside[has]]
+        out[col] = v
+    # Probabilities per ground contact (combined fix), contacts independent.
+    celig = _eligible(ccand, include_likely_ic)
+    csi = ccand["site_index"].to_numpy()
+    p_any, n_contacts = _p_any(ccand, "p_within", celig, n)
+    out["n_contacts"] = n_contacts
+    best, maxp = _best_per_site(ccand["p_within"].to_numpy(), csi, np.flatnonzero(celig), n)
     out["max_p_within"] = maxp
     out["p_any_within"] = p_any
     out["best_row"] = best
     area = math.pi * radius**2
     if parcels is not None:
-        pa, _ = _p_any(cand, "p_within_parcel", eligible & cand["p_within_parcel"].notna().to_numpy(), n)
+        pa, _ = _p_any(ccand, "p_within_parcel", celig & ccand["p_within_parcel"].notna().to_numpy(), n)
         mp = np.full(n, np.nan)
         parea = np.full(n, np.nan)
         for s, (polys, _extent) in parcels.items():
             parea[s] = sum(p.area for p in polys)
-            m = eligible & (si == s)
-            mp[s] = float(cand.loc[m, "p_within_parcel"].max()) if np.any(m) else 0.0
-        has = np.isfinite(parea)
+            m = celig & (csi == s)
+            mp[s] = float(ccand.loc[m, "p_within_parcel"].max()) if np.any(m) else 0.0
         out["parcel_area_km2"] = parea
         out["max_p_within_parcel"] = mp
-        out["p_any_within_parcel"] = np.where(has, pa, np.nan)
+        out["p_any_within_parcel"] = np.where(np.isfinite(parea), pa, np.nan)
+    for k, v in _context(index, lat, lon, t0, t1, include_likely_ic).items():
+        out[k] = v
     resid = None
     if de is not None:
         resid = _residual(index, lat, lon, radius, t0, t1, area, de, de_source, include_likely_ic)
@@ -530,58 +617,118 @@ def _when(t0: pd.Timestamp, t1: pd.Timestamp, tz) -> str:
     return f"between {la:%Y-%m-%d %H:%M} and {second} {lb:%Z} ({utc})"
 
 
-def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t0, t1, tz, include_likely_ic, parcel=None) -> str:
-    extra = " (low-amplitude positive reports included)" if include_likely_ic else ""
+def _signed_ka(ka: float) -> str:
+    sign = "\u2212" if ka < 0 else "+"
+    return f"{sign}{abs(ka):.1f} kA"
+
+
+def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t0, t1, tz, include_likely_ic,
+              parcel=None) -> str:
+    """The quotable paragraph of one site check.
+
+    It says what was found, what was set aside and what was assumed (ellipse confidence, the
+    independence of contacts, the coverage); outside the data's coverage it says only that no
+    conclusion is possible, and why.
+    """
     r = f"{radius:g} km"
     when = _when(t0, t1, tz)
+    cov = summ.get("coverage", "inside")
+    cov_note = summ.get("coverage_note", "")
+    if cov == "outside":
+        text = (f"No conclusion for {name} within {r} {when}: the place or period lies outside the data's coverage; "
+                f"{cov_note}. The stroke data cannot show whether lightning struck there or not.")
+        return text + (f" Note: {summ['coverage_warning']}" if summ.get("coverage_warning") else "")
+    extra = " (low-amplitude positive reports included)" if include_likely_ic else ""
+    part = " in the part of it the data cover" if cov == "partial" else ""
     n = int(summ["n_ground_within"])
     if n:
-        lead = f"{n} ground stroke{'s were' if n > 1 else ' was'}{extra} located within {r} of {name} {when}"
+        lead = f"{n} ground stroke{'s were' if n > 1 else ' was'}{extra} located within {r} of {name} {when}{part}"
     else:
-        lead = f"No ground stroke{extra} was located within {r} of {name} {when}"
+        lead = f"No ground stroke{extra} was located within {r} of {name} {when}{part}"
     parts = [lead]
     if best is not None:
-        ka = best["peak_current_ka"]
-        sign = "\u2212" if ka < 0 else "+"
-        desc = (f"a {sign}{abs(ka):.0f} kA stroke at {_clock(best['time'], tz)}, "
-                f"{_km(best['distance_km'])} to the {compass_point(best['bearing_deg'])}")
-        phrase = "the most likely one" if n else "the nearest candidate with the highest probability"
-        parts.append(f"; {phrase}, {desc}, has an estimated probability of "
-                     f"{percent(best['p_within'])} of having terminated within the radius, given the "
-                     "network's reported location error")
+        k_str = int(best["n_strokes"])
+        how = (f"{k_str} strokes combined into one position fix" if k_str > 1 else "a single stroke")
+        desc = (f"a ground contact of {_signed_ka(best['peak_current_ka'])} at {_clock(best['time'], tz)} "
+                f"({how}), {_km(best['distance_km'])} to the {compass_point(best['bearing_deg'])}")
+        phrase = "the most likely" if n else "the likeliest nearby"
+        parts.append(f"; {phrase}, {desc}, has an estimated probability of {percent(best['p_within'])} of having "
+                     "terminated within the radius, given the network's reported location error")
         k = int(summ["n_contacts"])
         if k > 1:
-            parts.append(f". Taking the {k} ground contacts that could have reached the circle as "
-                         f"independent, the probability that at least one terminated within {r} is "
-                         f"{percent(summ['p_any_within'])}")
+            parts.append(f". Taking the {k} ground contacts that could have reached the circle as independent, the "
+                         f"probability that at least one terminated within {r} is {percent(summ['p_any_within'])}")
     elif not n:
         parts.append(", and no ground stroke was close enough for its location error to reach the circle")
     text = "".join(parts) + "."
+    m = int(summ.get("n_set_aside_within", 0) or 0)
+    if m:
+        text += (f" {m} ground report{'s' if m > 1 else ''} within {r} {'were' if m > 1 else 'was'} set aside as "
+                 f"likely cloud pulse{'s' if m > 1 else ''} (positive, low peak current): the nearest, "
+                 f"{_signed_ka(summ['set_aside_peak_ka'])} at {_km(summ['set_aside_nearest_km'])}, would on its own "
+                 f"lie within the radius with a probability of {percent(summ['set_aside_p_within'])}.")
+    if summ.get("n_ground_within_context", 0):
+        near = summ["nearest_ground_km"]
+        text += (f" The nearest ground stroke in the period was {_km(near)} to the "
+                 f"{compass_point(summ['nearest_ground_bearing_deg'])} ({_signed_ka(summ['nearest_ground_peak_ka'])}); "
+                 f"the largest |peak current| within {CONTEXT_KM:g} km was {summ['max_abs_peak_ka_context']:.0f} kA.")
+    else:
+        text += f" No ground stroke was recorded within {CONTEXT_KM:g} km in the period."
     if parcel is not None and math.isfinite(summ.get("parcel_area_km2", float("nan"))):
         text += (f" For the parcel ({summ['parcel_area_km2']:.3g} km\u00b2) the probability that at least one "
                  f"ground contact terminated on it is {percent(summ['p_any_within_parcel'])}.")
-    if resid is not None:
-        text += (f" With a flash detection efficiency of {100 * resid['detection_efficiency']:.0f}% "
-                 f"({resid['de_source']}) and {resid['n_ground_flashes_in_ring']} recorded ground flashes "
-                 f"between {resid['ring_inner_km']:g} and {resid['ring_outer_km']:g} km of the site in the window, "
-                 f"the chance that an unrecorded flash struck within {r} is {percent(resid['p_unrecorded'])}.")
+    if cov == "partial":
+        text += (f" Part of the question is outside the data's coverage ({cov_note}); for that part there is no "
+                 "conclusion, and the chance of an unrecorded flash is not stated.")
+    elif resid is not None:
+        base = (f" With a flash detection efficiency of {100 * resid['detection_efficiency']:.0f}% "
+                f"({resid['de_source']}) and {resid['n_ground_flashes_in_ring']} recorded ground flashes "
+                f"between {resid['ring_inner_km']:g} and {resid['ring_outer_km']:g} km of the site in the period, ")
+        conf = f"{100 * resid['upper_confidence']:.0f}%"
+        if resid["n_ground_flashes_in_ring"] == 0:
+            text += base + (f"the chance that an unrecorded flash struck within {r} is at most "
+                            f"{percent(resid['p_unrecorded_upper'])} ({conf} upper bound; with no flash recorded "
+                            "nearby the local density cannot be estimated, only bounded).")
+        else:
+            text += base + (f"the chance that an unrecorded flash struck within {r} is {percent(resid['p_unrecorded'])} "
+                            f"({conf} upper bound {percent(resid['p_unrecorded_upper'])}).")
     else:
         text += " The network's detection efficiency was not given, so the chance of an unrecorded flash is not stated."
+    text += (f" Assumed: error ellipses at {100 * summ['ellipse_confidence']:.0f}% confidence (the network's stated "
+             "level); the strokes of one ground contact combined into one fix with errors independent between "
+             "strokes; different contacts independent.")
+    src = summ.get("coverage_source")
+    if cov == "inside" and src in ("declared", "data_extent"):
+        text += (" The data cover the whole period and circle (coverage "
+                 + ("declared in event.toml)." if src == "declared" else "taken from the data's own extent)."))
+    elif src not in ("declared", "data_extent"):
+        text += " Whether the data cover this place and period was not checked."
+    if summ.get("coverage_warning"):
+        text += f" Note: {summ['coverage_warning']}"
     return text
 
 
 # --- public API -------------------------------------------------------------------------------
 
+def _contact_index(strokes, config, include_likely_ic, contacts=None):
+    from .contacts import contact_fixes
+
+    if contacts is None:
+        contacts = contact_fixes(strokes, config, include_likely_ic=include_likely_ic)
+    return StrokeIndex(contacts, config)
+
+
 def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, config=None, parcel=None,
                include_likely_ic=False, detection_efficiency=None, de_source=None, name="site",
-               index: StrokeIndex | None = None) -> SiteResult:
-    """Check one site: candidate strokes, probabilities, a sentence and the residual chance.
+               index: StrokeIndex | None = None, contact_index: StrokeIndex | None = None,
+               coverage=None) -> SiteResult:
+    """Check one site: candidate strokes, per-contact probabilities, a sentence and the residual chance.
 
     Parameters
     ----------
     strokes : DataFrame
         Grouped stroke table (``flash_id``, ``ground_contact``, ``likely_ic``); may be None when
-        `index` is given.
+        `index` and `contact_index` are given.
     lat_deg, lon_deg : float
         Site, WGS84 degrees.
     radius_km : float
@@ -599,86 +746,191 @@ def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, co
         Flash detection efficiency (0, 1] and where it comes from; override event.toml.
     name : str
         Site name for the sentence.
-    index : StrokeIndex, optional
-        A prebuilt index (repeated queries).
+    index, contact_index : StrokeIndex, optional
+        Prebuilt indexes of the strokes and of the ground contacts
+        (:func:`debrief.contacts.contact_fixes`), for repeated queries.
+    coverage : debrief.coverage.Coverage, optional
+        The data's coverage (with the analysis window); outside it the answer is "no conclusion".
 
     Returns
     -------
     SiteResult
-        ``candidates``: ``time, latitude, longitude, peak_current_ka, type, flash_id,
-        ground_contact, likely_ic, distance_km, bearing_deg, p_within`` (+ ``p_within_parcel``),
-        ellipse columns, ``source_row``, ``ellipse_from_default``, plane offsets and covariance.
+        ``candidates``: one row per candidate stroke with its own ``p_within``; ``contacts``: one
+        row per candidate ground contact with the probability of its combined fix; the summary
+        (``p_any_within``, ``max_p_within`` from contacts, ``max_p_within_stroke``, coverage,
+        set-aside and context figures) and the sentence.
 
     References
     ----------
-    Bivariate-normal location error: :mod:`debrief.uncertainty`. Detection efficiency: Cummins
-    and Murphy (2009) [1]_.
+    Bivariate-normal location error: :mod:`debrief.uncertainty`; combined fixes:
+    :mod:`debrief.contacts` ([BarShalom2001]); detection efficiency: [CumminsMurphy2009]; the
+    upper bound of the unrecorded-flash chance: [Garwood1936].
     """
     _validate_site(lat_deg, lon_deg, radius_km)
     if index is None:
         index = StrokeIndex(strokes, config)
+    if contact_index is None:
+        contact_index = _contact_index(index.strokes, config, include_likely_ic)
     tz = config.time_zone if config is not None else None
     t_start = _to_utc(start, tz, "start")
     t_end = _to_utc(end, tz, "end")
     if t_start is not None and t_end is not None and t_end <= t_start:
         raise InputError("the window's end is not after its start")
+    sites = pd.DataFrame({"name": [name], "latitude": [float(lat_deg)], "longitude": [float(lon_deg)],
+                          "radius_km": [float(radius_km)], "start": [t_start if t_start is not None else pd.NaT],
+                          "end": [t_end if t_end is not None else pd.NaT]})
+    run = _run(index, contact_index, sites, config, include_likely_ic, detection_efficiency, de_source, coverage,
+               parcels_given={0: parcel} if parcel is not None else None)
+    return run.result(0, with_tables=True)
+
+
+#: Summary columns of :func:`check_sites`, in order.
+SITES_COLUMNS = (
+    "name", "latitude", "longitude", "radius_km", "start", "end", "coverage", "coverage_source", "coverage_note",
+    "coverage_warning", "n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "nearest_km",
+    "max_p_within", "max_p_within_stroke", "p_any_within", "p_unrecorded", "p_unrecorded_upper",
+    "n_set_aside_within", "set_aside_nearest_km", "set_aside_peak_ka", "nearest_ground_km",
+    "max_abs_peak_ka_context", "sentence",
+)
+
+
+@dataclass
+class _Run:
+    """One pass of the site check over many sites; :meth:`result` gives one site's SiteResult."""
+
+    index: StrokeIndex
+    cand: pd.DataFrame
+    ccand: pd.DataFrame
+    summ: pd.DataFrame
+    resid: dict | None
+    sites: pd.DataFrame
+    lat: np.ndarray
+    lon: np.ndarray
+    radius: np.ndarray
+    t0: np.ndarray
+    t1: np.ndarray
+    tz: str | None
+    include_likely_ic: bool
+    shapes: dict
+    confidence: float
+
+    def _window(self, s):
+        lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
+        a = pd.Timestamp(int(self.t0[s]), tz="UTC") if self.t0[s] != lo else _extent(self.index, "min")
+        b = pd.Timestamp(int(self.t1[s]), tz="UTC") if self.t1[s] != hi else _extent(self.index, "max")
+        return a, b
+
+    def result(self, s: int, *, with_tables: bool = False) -> SiteResult:
+        row = {c: self.summ[c].to_numpy()[s] for c in self.summ.columns}
+        w0, w1 = self._window(s)
+        name = str(self.sites["name"].iat[s])
+        best = None
+        if row["best_row"] >= 0:
+            b = int(row["best_row"])
+            best = {c: self.ccand[c].to_numpy()[b] for c in ("peak_current_ka", "distance_km", "bearing_deg", "p_within",
+                                                             "n_strokes")}
+            best["time"] = self.ccand["time"].iloc[b]
+        r_s = None
+        if self.resid:
+            r_s = {k: (v[s] if isinstance(v, np.ndarray) else v) for k, v in self.resid.items()}
+            r_s = {k: (float(v) if isinstance(v, (np.floating, float)) else int(v) if isinstance(v, np.integer) else v)
+                   for k, v in r_s.items()}
+        outside = row["coverage"] == "outside"
+        summary = {
+            "name": name, "latitude": float(self.lat[s]), "longitude": float(self.lon[s]),
+            "radius_km": float(self.radius[s]), "start": w0, "end": w1, "ellipse_confidence": self.confidence,
+            "coverage": row["coverage"], "coverage_source": row["coverage_source"],
+            "coverage_note": row["coverage_note"], "coverage_warning": row["coverage_warning"],
+            "n_candidates": int(row["n_candidates"]), "n_ground_candidates": int(row["n_ground_candidates"]),
+            "n_ground_within": int(row["n_ground_within"]), "n_contacts": int(row["n_contacts"]),
+            "nearest_km": float(row["nearest_km"]),
+            "max_p_within": np.nan if outside else float(row["max_p_within"]),
+            "max_p_within_stroke": np.nan if outside else float(row["max_p_within_stroke"]),
+            "p_any_within": np.nan if outside else float(row["p_any_within"]),
+            "include_likely_ic": bool(self.include_likely_ic), "contacts_independent": True,
+            "strokes_of_a_contact_combined": True,
+            "n_ellipse_from_default": int(row["n_default"]),
+            "n_set_aside_within": int(row["n_set_aside_within"]),
+            "set_aside_nearest_km": float(row["set_aside_nearest_km"]),
+            "set_aside_peak_ka": float(row["set_aside_peak_ka"]),
+            "set_aside_p_within": float(row["set_aside_p_within"]),
+            "context_km": CONTEXT_KM,
+            "n_ground_within_context": int(row["n_ground_within_context"]),
+            "nearest_ground_km": float(row["nearest_ground_km"]),
+            "nearest_ground_bearing_deg": float(row["nearest_ground_bearing_deg"]),
+            "nearest_ground_peak_ka": float(row["nearest_ground_peak_ka"]),
+            "max_abs_peak_ka_context": float(row["max_abs_peak_ka_context"]),
+        }
+        shape = self.shapes.get(s)
+        if shape is not None:
+            for k in ("parcel_area_km2", "max_p_within_parcel", "p_any_within_parcel"):
+                summary[k] = np.nan if outside and k != "parcel_area_km2" else float(row[k])
+        if r_s is not None and row["coverage"] == "inside":
+            summary["p_unrecorded"] = r_s["p_unrecorded"]
+            summary["p_unrecorded_upper"] = r_s["p_unrecorded_upper"]
+        else:
+            r_s = None  # outside or partly outside the coverage: the residual is not stated
+        sentence = _sentence(name, float(self.radius[s]), summary, best, r_s, w0, w1, self.tz,
+                             self.include_likely_ic, shape)
+        if with_tables:
+            mine = self.cand[self.cand["site_index"].to_numpy() == s].drop(columns=["site_index"]).reset_index(drop=True)
+            cmine = self.ccand[self.ccand["site_index"].to_numpy() == s].drop(columns=["site_index"]).reset_index(drop=True)
+        else:
+            mine, cmine = self.cand.iloc[:0], self.ccand.iloc[:0]
+        return SiteResult(name=name, candidates=mine, summary=summary, sentence=sentence, residual=r_s, contacts=cmine)
+
+
+def _run(index, cindex, sites, config, include_likely_ic, detection_efficiency, de_source, coverage,
+         parcels_given=None) -> _Run:
+    """The site check of every row of `sites` (``name, latitude, longitude, radius_km``, optional
+    ``start``, ``end``, ``parcel_file``)."""
+    from .io.sites import read_parcel
+
+    lat = sites["latitude"].to_numpy(dtype=float)
+    lon = sites["longitude"].to_numpy(dtype=float)
+    radius = sites["radius_km"].to_numpy(dtype=float)
+    _validate_site(lat, lon, radius, where="sites table" if len(sites) > 1 else "site")
+    n = len(sites)
+    t0, t1 = _window_bounds(index, None, None, n)
+    for col, arr in (("start", t0), ("end", t1)):
+        if col in sites.columns:
+            t = pd.to_datetime(sites[col], utc=True)
+            ok = t.notna().to_numpy()
+            arr[ok] = _time_ns(t[ok])
     de, src = _resolve_de(config, detection_efficiency, de_source)
-    lat = np.array([float(lat_deg)])
-    lon = np.array([float(lon_deg)])
-    radius = np.array([float(radius_km)])
-    t0, t1 = _window_bounds(index, t_start.value if t_start is not None else None,
-                            t_end.value if t_end is not None else None, 1)
-    parcels = None
+    shapes = dict(parcels_given or {})
+    if not parcels_given and "parcel_file" in sites.columns:
+        for i, pf in enumerate(sites["parcel_file"].fillna("").astype(str)):
+            if pf:
+                shapes[i] = read_parcel(pf)
+    parcels = {i: _parcel_in_plane(shp, lat[i], lon[i]) for i, shp in shapes.items()}
     extra = None
-    if parcel is not None:
-        polys, extent = _parcel_in_plane(parcel, float(lat_deg), float(lon_deg))
-        parcels = {0: (polys, extent)}
-        extra = np.array([extent])
-    cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels)
-    summ, resid = _summaries(index, cand, lat, lon, radius, t0, t1, include_likely_ic, de, src, parcels)
-    return _result(index, cand, summ, resid, 0, name, lat, lon, radius, t_start, t_end, tz, include_likely_ic, parcel,
-                   index.confidence)
+    if parcels:
+        extra = np.zeros(n)
+        for i, (_p, ext) in parcels.items():
+            extra[i] = ext
+    cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels or None)
+    ccand = _candidates(cindex, lat, lon, radius, t0, t1, extra, parcels or None)
+    ccand["n_strokes"] = cindex.strokes["n_strokes"].to_numpy()[ccand["stroke_row"].to_numpy()]
+    summ, resid = _summaries(index, cand, ccand, lat, lon, radius, t0, t1, include_likely_ic, de, src,
+                             parcels or None)
+    summ["n_default"] = np.bincount(cand["site_index"].to_numpy(), weights=cand["ellipse_from_default"].to_numpy(dtype=float),
+                                    minlength=n)
+    if coverage is not None:
+        from .coverage import check_places
 
-
-def _result(index, cand, summ, resid, s, name, lat, lon, radius, t_start, t_end, tz, include_likely_ic, parcel, confidence,
-            cols=None):
-    """One site's SiteResult; with `cols` (precomputed summary arrays) the candidate table is left empty."""
-    if cols is None:
-        row = {c: summ[c].to_numpy()[s] for c in summ.columns}
-        mine = cand[cand["site_index"].to_numpy() == s]
-        n_default = int(mine["ellipse_from_default"].sum())
+        lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
+        cov = check_places(coverage, lat, lon, radius, np.where(t0 == lo, coverage.t0.value, t0),
+                           np.where(t1 == hi, coverage.t1.value, t1))
+        for c in ("coverage", "coverage_source", "coverage_note", "coverage_warning"):
+            summ[c] = cov[c].to_numpy()
     else:
-        row = {c: v[s] for c, v in cols.items() if not c.startswith("_")}
-        mine = cols["_empty"]
-        n_default = int(row["n_default"])
-    best = None
-    if row["best_row"] >= 0:
-        b = int(row["best_row"])
-        best = {c: cand[c].to_numpy()[b] for c in ("peak_current_ka", "distance_km", "bearing_deg", "p_within")}
-        best["time"] = cand["time"].iloc[b]
-    r_s = {k: (v[s] if isinstance(v, np.ndarray) else v) for k, v in resid.items()} if resid else None
-    w0 = t_start if t_start is not None else _extent(index, "min")
-    w1 = t_end if t_end is not None else _extent(index, "max")
-    summary = {
-        "name": name, "latitude": float(lat[s]), "longitude": float(lon[s]), "radius_km": float(radius[s]),
-        "start": w0, "end": w1, "ellipse_confidence": confidence,
-        "n_candidates": int(row["n_candidates"]), "n_ground_candidates": int(row["n_ground_candidates"]),
-        "n_ground_within": int(row["n_ground_within"]), "n_contacts": int(row["n_contacts"]),
-        "nearest_km": float(row["nearest_km"]), "max_p_within": float(row["max_p_within"]),
-        "p_any_within": float(row["p_any_within"]), "include_likely_ic": bool(include_likely_ic),
-        "contacts_independent": True,
-        "n_ellipse_from_default": n_default,
-    }
-    if parcel is not None:
-        for k in ("parcel_area_km2", "max_p_within_parcel", "p_any_within_parcel"):
-            summary[k] = float(row[k])
-    if r_s is not None:
-        r_s = {k: (float(v) if isinstance(v, (np.floating, float)) else int(v) if isinstance(v, np.integer) else v)
-               for k, v in r_s.items()}
-        summary["p_unrecorded"] = r_s["p_unrecorded"]
-    sentence = _sentence(name, float(radius[s]), summary, best, r_s, w0, w1, tz, include_likely_ic, parcel)
-    out = mine.drop(columns=["site_index"]).reset_index(drop=True)
-    return SiteResult(name=name, candidates=out, summary=summary, sentence=sentence, residual=r_s)
+        summ["coverage"], summ["coverage_source"], summ["coverage_note"], summ["coverage_warning"] = (
+            "inside", "not_checked", "", "")
+    tz = config.time_zone if config is not None else None
+    return _Run(index=index, cand=cand, ccand=ccand, summ=summ, resid=resid, sites=sites, lat=lat, lon=lon,
+                radius=radius, t0=t0, t1=t1, tz=tz, include_likely_ic=include_likely_ic, shapes=shapes,
+                confidence=index.confidence)
 
 
 def _extent(index, how):
@@ -687,33 +939,25 @@ def _extent(index, how):
     return pd.Timestamp(int(index.t_min_ns if how == "min" else index.t_max_ns), tz="UTC")
 
 
-#: Summary columns of :func:`check_sites`, in order.
-SITES_COLUMNS = (
-    "name", "latitude", "longitude", "radius_km", "start", "end", "n_candidates", "n_ground_candidates",
-    "n_ground_within", "n_contacts", "nearest_km", "max_p_within", "p_any_within", "p_unrecorded", "sentence",
-)
-
-
 def check_sites(strokes, sites: pd.DataFrame, config=None, *, include_likely_ic=False, detection_efficiency=None,
-                de_source=None, index: StrokeIndex | None = None, sentences: bool = True,
-                return_candidates: bool = False):
-    """Check many sites in one pass over a k-d tree of the strokes.
+                de_source=None, index: StrokeIndex | None = None, contact_index: StrokeIndex | None = None,
+                sentences: bool = True, return_candidates: bool = False, coverage=None):
+    """Check many sites in one pass over k-d trees of the strokes and of the ground contacts.
 
     Parameters
     ----------
     strokes : DataFrame
-        Grouped stroke table (may be None when `index` is given).
+        Grouped stroke table (may be None when the indexes are given).
     sites : DataFrame
         ``name, latitude, longitude, radius_km`` and optional ``start, end`` (UTC timestamps,
         NaT = open), ``parcel_file`` (:func:`debrief.io.sites.read_sites` gives this form).
-        Rows without ``radius_km`` (alert-only sites) are left out.
-    config, include_likely_ic, detection_efficiency, de_source :
+        Rows without ``radius_km`` (crew-only sites) are left out.
+    config, include_likely_ic, detection_efficiency, de_source, index, contact_index, coverage :
         As for :func:`check_site`.
-    index : StrokeIndex, optional
     sentences : bool
         Also write each site's sentence (slower for very many sites).
     return_candidates : bool
-        Also return the candidate table with a ``site`` column.
+        Also return the candidate strokes with a ``site`` column.
 
     Returns
     -------
@@ -721,65 +965,40 @@ def check_sites(strokes, sites: pd.DataFrame, config=None, *, include_likely_ic=
         One row per site with :data:`SITES_COLUMNS` (+ parcel figures where a parcel is given);
         with `return_candidates`, ``(summary, candidates)``.
     """
-    from .io.sites import read_parcel
-
     for c in ("name", "latitude", "longitude", "radius_km"):
         if c not in sites.columns:
             raise InputError(f"the sites table lacks the column {c!r}")
     s = sites[np.isfinite(sites["radius_km"].to_numpy(dtype=float))].reset_index(drop=True)
     if index is None:
         index = StrokeIndex(strokes, config)
-    lat = s["latitude"].to_numpy(dtype=float)
-    lon = s["longitude"].to_numpy(dtype=float)
-    radius = s["radius_km"].to_numpy(dtype=float)
-    _validate_site(lat, lon, radius, where="sites table")
+    if contact_index is None:
+        contact_index = _contact_index(index.strokes, config, include_likely_ic)
+    run = _run(index, contact_index, s, config, include_likely_ic, detection_efficiency, de_source, coverage)
     n = len(s)
-    t0, t1 = _window_bounds(index, None, None, n)
-    for col, arr in (("start", t0), ("end", t1)):
-        if col in s.columns:
-            t = pd.to_datetime(s[col], utc=True)
-            ok = t.notna().to_numpy()
-            arr[ok] = _time_ns(t[ok])
-    de, src = _resolve_de(config, detection_efficiency, de_source)
-    parcels = {}
-    shapes = {}
-    if "parcel_file" in s.columns:
-        for i, pf in enumerate(s["parcel_file"].fillna("").astype(str)):
-            if pf:
-                shapes[i] = read_parcel(pf)
-                parcels[i] = _parcel_in_plane(shapes[i], lat[i], lon[i])
-    extra = None
-    if parcels:
-        extra = np.zeros(n)
-        for i, (_p, ext) in parcels.items():
-            extra[i] = ext
-    cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels or None)
-    summ, resid = _summaries(index, cand, lat, lon, radius, t0, t1, include_likely_ic, de, src, parcels or None)
-    out = pd.DataFrame({"name": s["name"].to_numpy(), "latitude": lat, "longitude": lon, "radius_km": radius})
-    out["start"] = pd.to_datetime(np.where(t0 == np.iinfo(np.int64).min, np.datetime64("NaT"), t0.astype("datetime64[ns]")), utc=True)
-    out["end"] = pd.to_datetime(np.where(t1 == np.iinfo(np.int64).max, np.datetime64("NaT"), t1.astype("datetime64[ns]")), utc=True)
-    for c in ("n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "nearest_km", "max_p_within", "p_any_within"):
+    summ = run.summ
+    out = pd.DataFrame({"name": s["name"].to_numpy(), "latitude": run.lat, "longitude": run.lon, "radius_km": run.radius})
+    lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
+    out["start"] = pd.to_datetime(np.where(run.t0 == lo, np.datetime64("NaT"), run.t0.astype("datetime64[ns]")), utc=True)
+    out["end"] = pd.to_datetime(np.where(run.t1 == hi, np.datetime64("NaT"), run.t1.astype("datetime64[ns]")), utc=True)
+    outside = summ["coverage"].to_numpy() == "outside"
+    inside = summ["coverage"].to_numpy() == "inside"
+    for c in ("coverage", "coverage_source", "coverage_note", "coverage_warning", "n_candidates", "n_ground_candidates",
+              "n_ground_within", "n_contacts", "nearest_km", "max_p_within", "max_p_within_stroke", "p_any_within",
+              "n_set_aside_within", "set_aside_nearest_km", "set_aside_peak_ka", "nearest_ground_km",
+              "max_abs_peak_ka_context"):
         out[c] = summ[c].to_numpy()
-    out["p_unrecorded"] = resid["p_unrecorded"] if resid is not None else np.nan
-    if parcels:
+    for c in ("max_p_within", "max_p_within_stroke", "p_any_within"):
+        out[c] = np.where(outside, np.nan, out[c].to_numpy(dtype=float))
+    for c in ("p_unrecorded", "p_unrecorded_upper"):
+        out[c] = np.where(inside, run.resid[c], np.nan) if run.resid is not None else np.nan
+    if run.shapes:
         for c in ("parcel_area_km2", "max_p_within_parcel", "p_any_within_parcel"):
             out[c] = summ[c].to_numpy()
-    if sentences:
-        tz = config.time_zone if config is not None else None
-        texts = []
-        cols = {c: summ[c].to_numpy() for c in summ.columns}
-        cols["_empty"] = cand.iloc[:0]
-        cols["n_default"] = np.bincount(cand["site_index"].to_numpy(), weights=cand["ellipse_from_default"].to_numpy(dtype=float), minlength=n)
-        for i in range(n):
-            ts = pd.Timestamp(t0[i], tz="UTC") if t0[i] != np.iinfo(np.int64).min else None
-            te = pd.Timestamp(t1[i], tz="UTC") if t1[i] != np.iinfo(np.int64).max else None
-            texts.append(_result(index, cand, summ, resid, i, str(out["name"].iat[i]), lat, lon, radius, ts, te, tz,
-                                 include_likely_ic, shapes.get(i), index.confidence, cols).sentence)
-        out["sentence"] = texts
-    else:
-        out["sentence"] = ""
+    out["sentence"] = [run.result(i).sentence for i in range(n)] if sentences else ""
+    cols = [c for c in SITES_COLUMNS if c in out.columns] + [c for c in out.columns if c not in SITES_COLUMNS]
+    out = out[cols]
     if return_candidates:
-        c = cand.copy()
+        c = run.cand.copy()
         c.insert(0, "site", out["name"].to_numpy()[c["site_index"].to_numpy()])
         return out, c.drop(columns=["site_index"])
     return out

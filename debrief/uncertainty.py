@@ -176,6 +176,56 @@ def reach_km(sxx, syy, sxy, tail=1e-6):
     return s1 * math.sqrt(-2.0 * math.log(tail))
 
 
+def combine_fixes(x_km, y_km, sxx, syy, sxy, group):
+    """Combine repeated position fixes of one point by inverse-covariance weighting.
+
+    The strokes of one ground contact share one termination point; each reported position is a
+    measurement of it with its own bivariate-normal error. With a flat prior and errors
+    independent between strokes, the posterior of the point is the normalised product of the
+    strokes' densities: a normal with information (inverse covariance) ``P = sum P_i`` and mean
+    ``P^-1 sum P_i x_i``. Its covariance is never larger than any one stroke's.
+
+    Parameters
+    ----------
+    x_km, y_km : array_like
+        Reported positions in one local plane, km (x east, y north), one per stroke.
+    sxx, syy, sxy : array_like
+        Each stroke's error covariance, km^2 (positive definite).
+    group : array_like of int
+        Group label per stroke (e.g. a contact number); labels need not be sorted.
+
+    Returns
+    -------
+    labels : ndarray
+        The sorted distinct labels.
+    x_km, y_km, sxx, syy, sxy : ndarray
+        The combined position and covariance per label.
+    n : ndarray of int
+        Fixes combined per label.
+
+    References
+    ----------
+    .. [BarShalom2001] Bar-Shalom, Y., Li, X. R. and Kirubarajan, T. (2001). Estimation with
+       Applications to Tracking and Navigation. Wiley (the information form of combining
+       independent Gaussian estimates; from memory).
+    """
+    x, y, a, b, c = (np.asarray(v, dtype=float) for v in (x_km, y_km, sxx, syy, sxy))
+    labels, inv = np.unique(np.asarray(group), return_inverse=True)
+    det = a * b - c * c
+    if np.any(~(det > 0.0)) or np.any(~(a > 0.0)):
+        raise InputError("combine_fixes: every covariance must be positive definite")
+    # Information matrices of the strokes and their sums per group.
+    ia, ib, ic = b / det, a / det, -c / det
+    m = labels.size
+    sa, sb, sc = (np.bincount(inv, weights=w, minlength=m) for w in (ia, ib, ic))
+    hx = np.bincount(inv, weights=ia * x + ic * y, minlength=m)
+    hy = np.bincount(inv, weights=ic * x + ib * y, minlength=m)
+    dd = sa * sb - sc * sc
+    cxx, cyy, cxy = sb / dd, sa / dd, -sc / dd
+    return (labels, cxx * hx + cxy * hy, cxy * hx + cyy * hy, cxx, cyy, cxy,
+            np.bincount(inv, minlength=m).astype(np.int64))
+
+
 @functools.lru_cache(maxsize=8)
 def _gauss_legendre(n: int):
     x, w = np.polynomial.legendre.leggauss(n)
@@ -974,7 +1024,7 @@ def p_within_corridor(x_km, y_km, sxx, syy, sxy, line_x_km, line_y_km, half_widt
     return (out, paths.reshape(shape)) if return_paths else out
 
 
-def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, confidence=None):
+def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, confidence=None, on_missing="raise"):
     """Covariance of every stroke's location error, filling missing ellipses from a default.
 
     Parameters
@@ -986,6 +1036,9 @@ def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, conf
         Supplies ``ellipse_confidence`` and ``default_uncertainty_km``.
     default_uncertainty_km, confidence : float, optional
         Override the settings.
+    on_missing : {"raise", "nan"}
+        Without a default, strokes with no ellipse raise (site checks need every error), or get
+        NaN covariance (``"nan"``: callers that judge such strokes on position alone).
 
     Returns
     -------
@@ -1011,6 +1064,11 @@ def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, conf
     br = np.where((a == b) & ~np.isfinite(br), 0.0, br)
     missing = ~(np.isfinite(a) & np.isfinite(b) & np.isfinite(br))
     if np.any(missing):
+        if default_uncertainty_km is None and on_missing == "nan":
+            sxx, syy, sxy = ellipse_covariance(np.where(missing, 1.0, a), np.where(missing, 1.0, b),
+                                               np.where(missing, 0.0, br), confidence)
+            nan = np.where(missing, np.nan, 1.0)
+            return sxx * nan, syy * nan, sxy * nan, np.zeros(n, dtype=bool)
         if default_uncertainty_km is None:
             raise InputError(
                 f"{int(missing.sum())} of {n} strokes have no error ellipse; set "

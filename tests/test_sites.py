@@ -126,8 +126,21 @@ def test_p_within_circular_matches_ncx2_and_p_any_combines_contacts():
     p1, p1b, p2 = ncx(0.8, 0.5), ncx(1.3, 0.4), ncx(1.5, 0.6)
     got = res.candidates["p_within"].to_numpy()
     assert got[0] == pytest.approx(p1, abs=1e-6) and got[1] == pytest.approx(p1b, abs=1e-6) and got[2] == pytest.approx(p2, abs=1e-6)
-    # one contact = the larger of its strokes; contacts independent; likely_ic and IC left out
-    assert res.summary["p_any_within"] == pytest.approx(1 - (1 - max(p1, p1b)) * (1 - p2), abs=1e-6)
+    # One contact = one fix: two circular errors combine by inverse-variance weighting (the product
+    # of two normal densities, computed here by hand), then ncx2 on the combined circle; contacts
+    # independent; likely_ic and IC left out.
+    xy = [0.8 * np.array([np.sin(np.radians(45.0)), np.cos(np.radians(45.0))]),
+          1.3 * np.array([np.sin(np.radians(120.0)), np.cos(np.radians(120.0))])]
+    w1, w2 = (K50 / 0.5) ** 2, (K50 / 0.4) ** 2
+    m = (w1 * xy[0] + w2 * xy[1]) / (w1 + w2)
+    s_c = math.sqrt(1.0 / (w1 + w2))
+    p_contact = stats.ncx2.cdf((r / s_c) ** 2, 2, float(m @ m) / s_c**2)
+    # The contact's fix is combined in its own plane, the hand value in the site's: the two differ
+    # by terms of order d^2/R (about 1 cm here), worth a few 1e-5 in p.
+    assert res.summary["p_any_within"] == pytest.approx(1 - (1 - p_contact) * (1 - p2), abs=5e-5)
+    assert res.summary["max_p_within"] == pytest.approx(max(p_contact, p2), abs=5e-5)
+    assert res.summary["max_p_within_stroke"] == pytest.approx(max(p1, p1b, p2), abs=1e-6)
+    assert res.contacts["n_strokes"].max() == 2
     assert res.summary["n_contacts"] == 2
     assert res.summary["n_ground_within"] == 1
     assert res.summary["nearest_km"] == pytest.approx(0.8, abs=1e-6)
@@ -230,7 +243,8 @@ def test_sentence_reads_like_a_claim_letter():
     s = res.sentence
     p = stats.ncx2.cdf((1.0 / (0.3 / K50)) ** 2, 2, (0.35 / (0.3 / K50)) ** 2)  # scipy.stats.ncx2
     assert s.startswith("1 ground stroke was located within 1 km of Tollgate Farm between 2026-07-14 14:00 and 15:00 CDT")
-    assert "\u221224 kA stroke at 14:32:05 CDT (19:32:05 UTC), 0.35 km to the NE" in s
+    assert "a ground contact of \u221224.0 kA at 14:32:05 CDT (19:32:05 UTC) (a single stroke), 0.35 km to the NE" in s
+    assert "error ellipses at 50% confidence" in s  # the assumption is stated
     assert S.percent(p) in s and "not stated" in s
     none = S.check_site(table(rows), 45.9, -93.2, 1.0, config=CFG, name="17 Alder Row")
     assert none.sentence.startswith("No ground stroke was located within 1 km of 17 Alder Row")
@@ -267,16 +281,22 @@ def test_residual_chance_of_an_unrecorded_flash():
 @settings(max_examples=25, deadline=None)
 @given(st.lists(st.tuples(st.floats(0.0, 3.0), st.floats(0, 359.9), st.floats(0.05, 1.0), st.integers(1, 4)), min_size=1, max_size=8))
 def test_p_any_bounds(strokes):
-    # Invariants: max p <= p_any <= min(1, sum of contact maxima); p_any in [0, 1].
+    # Invariants: max contact p <= p_any <= min(1, sum of contact p); p_any in [0, 1]; a combined
+    # fix is never less certain than its best stroke (its covariance is the smaller).
     rows = [at(45.5, -93.2, d, az, semi_major_km=a, semi_minor_km=a * 0.6, major_bearing_deg=az, flash_id=f,
                time=f"2026-07-14T20:00:{i:02d}Z") for i, (d, az, a, f) in enumerate(strokes)]
     res = S.check_site(table(rows), 45.5, -93.2, 1.0)
-    c = res.candidates
-    per = c.groupby(["flash_id", "ground_contact"])["p_within"].max() if len(c) else pd.Series(dtype=float)
+    per = res.contacts["p_within"] if len(res.contacts) else pd.Series(dtype=float)
     p_any = res.summary["p_any_within"]
     assert 0.0 <= p_any <= 1.0
     assert res.summary["max_p_within"] <= p_any + 1e-12
     assert p_any <= min(1.0, per.sum()) + 1e-12
+    if len(res.contacts):
+        c, k = res.contacts, res.candidates
+        for (fid, gc), g in k.groupby(["flash_id", "ground_contact"]):
+            row = c[(c["flash_id"] == fid) & (c["ground_contact"] == gc)]
+            if len(row) and len(g) == row["n_strokes"].iloc[0]:
+                assert row["semi_major_km"].iloc[0] <= g["semi_major_km"].min() + 1e-9
 
 
 # --- parcels and the sites table --------------------------------------------------------------

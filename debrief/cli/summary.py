@@ -8,26 +8,11 @@ numbers are the report's and the widgets' numbers.
 from __future__ import annotations
 
 import json
-import math
 import sys
 
-import numpy as np
 
-from .. import continuing_current as cc
-from .. import polarity as pol
-from ..errors import InputError
-from ..timeutil import format_times, iso_utc, parse_user_time
-
-GENERAL_CAUTIONS = (
-    "This summary is a record of what a lightning location network reported, not a warning "
-    "and not a safety clearance.",
-    "Networks miss some strokes and flashes (detection efficiency below 100%) and locate each "
-    "stroke only within its error ellipse; counts, multiplicities and intervals carry both.",
-    "Multiplicities from network data run below those seen on video because subsequent strokes "
-    "are missed more often than first strokes.",
-    "Conclusions about damage, outages or safety need qualified people and defer to local codes "
-    "and licensed practice.",
-)
+from ..summary import GENERAL_CAUTIONS, summarise  # noqa: F401 (GENERAL_CAUTIONS: part of this module's API)
+from ..timeutil import parse_user_time
 
 
 def register(subparsers) -> None:
@@ -47,101 +32,20 @@ def register(subparsers) -> None:
     p.set_defaults(func=run)
 
 
-def summarise(event, start=None, end=None, top: int = 10) -> dict:
-    """Every number of the summary, as a JSON-ready dict (NaN as None).
-
-    Parameters
-    ----------
-    event : debrief.event.Event
-    start, end : Timestamp, optional
-        Window on first-stroke times (default: the event's window).
-    top : int
-        How many continuing-current suspects to list (largest peak current first).
-    """
-    if top < 0:
-        raise InputError("--top must be 0 or more")
-    start = event.start if start is None else start
-    end = event.end if end is None else end
-    if end < start:
-        raise InputError(f"end ({iso_utc(end)}) is before start ({iso_utc(start)})")
-    cfg = event.config
-    strokes, flashes = event.window(start, end)
-    is_cg_s = (strokes["type"] == "CG").to_numpy()
-    is_cg_f = (flashes["type"] == "CG").to_numpy()
-    share = pol.positive_share(flashes)
-    mult = pol.multiplicity_table(flashes)
-    means = pol.mean_multiplicity(flashes)
-    inter = pol.interstroke_summary(flashes)
-    med = pol.first_subsequent_medians(strokes)
-    ref = pol.compare_reference(strokes, config=cfg)
-    rules = cc.rules_from(cfg)
-    gaps = cc.suspect_gaps(strokes, flashes, cfg)
-    sus = flashes[flashes["cc_suspect"].to_numpy(dtype=bool)]
-    # the longest suspicious gap of each flash, with the weak stroke's current before it
-    longest = gaps.sort_values(["flash_id", "interval_ms"]).groupby("flash_id").tail(1).set_index("flash_id")
-    top_rows = sus.sort_values(["max_abs_peak_ka", "flash_id"], ascending=[False, True]).head(top)
-    by_reason = {code: int(sus["cc_reasons"].str.split(";").apply(lambda c, k=code: k in c).sum()) for code in cc.REASONS}
-    de = cfg.get("flash_detection_efficiency")
-    de_src = cfg.get("flash_detection_efficiency_source")
-    semi = strokes["semi_major_km"].to_numpy(dtype=float) if "semi_major_km" in strokes else np.zeros(0)
-    semi = semi[~np.isnan(semi)]
-    out = {
-        "event": event.name,
-        "window": {"start": iso_utc(start), "end": iso_utc(end), "time_zone": cfg.time_zone,
-                   "start_text": format_times(start, cfg.time_zone), "end_text": format_times(end, cfg.time_zone)},
-        "ledger": event.ledger.to_dict(),
-        "ledger_line": event.ledger.one_line(),
-        "counts": {
-            "strokes": int(len(strokes)), "ground_strokes": int(is_cg_s.sum()), "cloud_pulses": int((~is_cg_s).sum()),
-            "flashes": int(len(flashes)), "ground_flashes": int(is_cg_f.sum()), "cloud_flashes": int((~is_cg_f).sum()),
-        },
-        "polarity": share,
-        "multiplicity": {"table": mult.reset_index().to_dict(orient="records"),
-                         "mean": means.reset_index(names="polarity").to_dict(orient="records")},
-        "interstroke": inter.reset_index(names="polarity").to_dict(orient="records"),
-        "medians": med.reset_index(names="polarity").to_dict(orient="records"),
-        "reference": ref.reset_index(names="kind").to_dict(orient="records"),
-        "continuing_current": {
-            "rules": rules, "suspects": int(len(sus)), "by_reason": by_reason,
-            "reasons": {k: dict(v) for k, v in cc.REASONS.items()},
-            "top": [{
-                "flash_id": int(r.flash_id), "time": iso_utc(r.time), "time_text": format_times(r.time, cfg.time_zone),
-                "polarity": str(r.polarity), "multiplicity": int(r.multiplicity),
-                "max_abs_peak_ka": float(r.max_abs_peak_ka), "cc_reasons": str(r.cc_reasons),
-                "longest_gap_ms": float(longest["interval_ms"].get(r.flash_id, np.nan)),
-                "gap_after_ka": float(longest["peak_current_ka"].get(r.flash_id, np.nan)),
-            } for r in top_rows.itertuples(index=False)],
-        },
-        "network": {"flash_detection_efficiency": de, "flash_detection_efficiency_source": de_src,
-                    "median_semi_major_km": float(np.median(semi)) if len(semi) else None,
-                    "ellipse_confidence": cfg.get("ellipse_confidence")},
-        "cautions": list(GENERAL_CAUTIONS) + list(cc.CAUTIONS),
-    }
-    return _clean(out)
-
-
-def _clean(v):
-    """JSON-ready: numpy scalars to Python, NaN/inf to None."""
-    if isinstance(v, dict):
-        return {str(k): _clean(x) for k, x in v.items()}
-    if isinstance(v, (list, tuple)):
-        return [_clean(x) for x in v]
-    if isinstance(v, (np.integer,)):
-        return int(v)
-    if isinstance(v, (float, np.floating)):
-        f = float(v)
-        return f if math.isfinite(f) else None
-    if isinstance(v, np.bool_):
-        return bool(v)
-    return v
-
-
 def _num(v, fmt="{:.1f}", none="n/a"):
     return none if v is None else fmt.format(v)
 
 
 def _pct(v):
     return "n/a" if v is None else f"{100.0 * v:.1f}%"
+
+
+def _coverage_line(cov) -> str:
+    if not cov:
+        return "Coverage: not stated"
+    src = {"declared": "declared in event.toml", "data_extent": "taken from the data's own extent"}
+    return (f"Coverage: {cov['coverage_start']} to {cov['coverage_end']} ({src[cov['coverage_time_source']]}); "
+            f"area {cov['coverage_area']} ({src[cov['coverage_area_source']]})")
 
 
 def render_text(s: dict) -> str:
@@ -152,6 +56,7 @@ def render_text(s: dict) -> str:
         s["event"],
         f"Window (first-stroke times): {s['window']['start_text']} to {s['window']['end_text']}",
         f"Data: {s['ledger_line']}",
+        _coverage_line(s.get("coverage")),
         "",
         f"Strokes: {c['strokes']:,} ({c['ground_strokes']:,} ground strokes, {c['cloud_pulses']:,} cloud pulses)",
         f"Flashes: {c['flashes']:,} ({c['ground_flashes']:,} ground, {c['cloud_flashes']:,} cloud)"
@@ -209,6 +114,7 @@ def render_text(s: dict) -> str:
 
 
 def run(args) -> int:
+    from ..analysis import analyse
     from ..event import load_event
 
     overrides = {"time_zone": args.tz} if args.tz else None
@@ -218,7 +124,7 @@ def run(args) -> int:
     tz = event.config.time_zone
     start = parse_user_time(args.start, tz, what="--start") if args.start else None
     end = parse_user_time(args.end, tz, what="--end") if args.end else None
-    s = summarise(event, start, end, top=args.top)
+    s = summarise(analyse(event, start, end), top=args.top)
     if args.json:
         print(json.dumps(s, indent=2))
     else:

@@ -173,12 +173,14 @@ def read_crew_log(path, *, time_zone: str | None = None):
     return log, problems
 
 
-def read_parcel(path):
+def read_parcel(path, *, what: str = "parcel file"):
     """Read a parcel outline: GeoJSON (RFC 7946) Polygon or MultiPolygon, WGS84 lon/lat.
 
     Accepts a bare geometry, a Feature or a FeatureCollection (polygons of all features are
     joined). A ``crs`` member (not part of RFC 7946), an unclosed ring, a ring with fewer than
     four positions, a self-intersecting ring or coordinates out of range is an InputError.
+
+    `what` names the file in messages (the same reader serves ``coverage_file``).
 
     Returns
     -------
@@ -189,27 +191,27 @@ def read_parcel(path):
 
     p = Path(path)
     if not p.exists():
-        raise InputError(f"parcel file not found: {p}")
+        raise InputError(f"{what} not found: {p}")
     try:
         doc = json.loads(p.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as e:
-        raise InputError(f"parcel file {p} is not valid JSON: {e}") from None
+        raise InputError(f"{what} {p} is not valid JSON: {e}") from None
     if not isinstance(doc, dict):
-        raise InputError(f"parcel file {p}: expected a GeoJSON object")
+        raise InputError(f"{what} {p}: expected a GeoJSON object")
     geoms = []
 
     def visit(obj, where):
         if not isinstance(obj, dict):
-            raise InputError(f"parcel file {p}: {where} is not a GeoJSON object")
+            raise InputError(f"{what} {p}: {where} is not a GeoJSON object")
         if "crs" in obj:
-            raise InputError(f"parcel file {p}: a 'crs' member is not allowed (RFC 7946: coordinates are WGS84 longitude, latitude)")
+            raise InputError(f"{what} {p}: a 'crs' member is not allowed (RFC 7946: coordinates are WGS84 longitude, latitude)")
         kind = obj.get("type")
         if kind == "FeatureCollection":
             for k, f in enumerate(obj.get("features") or []):
                 visit(f, f"feature {k + 1}")
         elif kind == "Feature":
             if obj.get("geometry") is None:
-                raise InputError(f"parcel file {p}: {where} has no geometry")
+                raise InputError(f"{what} {p}: {where} has no geometry")
             visit(obj["geometry"], where)
         elif kind == "Polygon":
             geoms.append(_polygon(obj.get("coordinates"), p, where))
@@ -217,14 +219,14 @@ def read_parcel(path):
             for k, rings in enumerate(obj.get("coordinates") or []):
                 geoms.append(_polygon(rings, p, f"{where}, polygon {k + 1}"))
         else:
-            raise InputError(f"parcel file {p}: {where} is a {kind!r}; a parcel must be a Polygon or MultiPolygon")
+            raise InputError(f"{what} {p}: {where} is a {kind!r}; a parcel must be a Polygon or MultiPolygon")
 
     visit(doc, "the document")
     if not geoms:
-        raise InputError(f"parcel file {p} holds no polygon")
+        raise InputError(f"{what} {p} holds no polygon")
     shape = geoms[0] if len(geoms) == 1 else shapely.MultiPolygon(geoms)
     if not shape.is_valid:
-        raise InputError(f"parcel file {p}: the polygons overlap or are invalid ({shapely.is_valid_reason(shape)})")
+        raise InputError(f"{what} {p}: the polygons overlap or are invalid ({shapely.is_valid_reason(shape)})")
     return shape
 
 
