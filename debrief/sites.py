@@ -25,10 +25,10 @@ from the WGS84 geodesic), the same plane as :class:`debrief.geodesy.LocalPlane`.
 
 References
 ----------
-.. [1] Cummins, K. L. and Murphy, M. J. (2009). An overview of lightning locating systems:
-       history, techniques, and data uses. IEEE Trans. EMC 51(3), 499-518 (detection
-       efficiency and location error; from memory).
-.. [2] Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55.
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [CumminsMurphy2009] Detection efficiency and location error (from memory).
+.. [Karney2013] Geodesics on the WGS84 ellipsoid.
 """
 
 from __future__ import annotations
@@ -612,7 +612,7 @@ def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, co
     References
     ----------
     Bivariate-normal location error: :mod:`debrief.uncertainty`. Detection efficiency: Cummins
-    and Murphy (2009) [1]_.
+    and Murphy (2009) [CumminsMurphy2009]_.
     """
     _validate_site(lat_deg, lon_deg, radius_km)
     if index is None:
