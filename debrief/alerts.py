@@ -13,9 +13,9 @@ stroke.
 
 References
 ----------
-.. [1] Holle, R. L., López, R. E. and Zimmermann, C. (1999). Updated recommendations for
-       lightning safety - 1998. Bull. Amer. Meteor. Soc. 80(10), 2035-2041 (the 30-minute rule;
-       the NOAA/NWS wording).
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [Holle1999] The 30-minute rule; the NOAA/NWS wording.
 .. Stop radius 10 km and warning radius 16 km: common practice, not a standard.
 """
 
@@ -72,7 +72,7 @@ def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, st
         over the default.
     config : EventConfig, optional
         ``[alerts]`` defaults: ``stop_km`` 10, ``warn_km`` none, ``all_clear_min`` 30,
-        ``include_ic`` false (common practice; 30 min after Holle et al. 1999 [1]_).
+        ``include_ic`` false (common practice; 30 min after Holle et al. 1999 [Holle1999]_).
     stop_km, warn_km, all_clear_min, include_ic : optional
         Override the ``[alerts]`` defaults.
     data_end : Timestamp, optional
@@ -93,7 +93,7 @@ def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, st
 
     References
     ----------
-    Holle, López and Zimmermann (1999) [1]_.
+    Holle, López and Zimmermann (1999) [Holle1999]_.
     """
     from scipy.spatial import cKDTree
 

@@ -82,7 +82,7 @@ _SCHEMA: dict[str, dict[str, Key]] = {
         "likely_ic_below_ka": Key(15.0, _NUM, "positive ground reports below this peak current are flagged likely_ic", 0.0, None),
     },
     "continuing_current": {
-        "positive_min_ka": Key(20.0, _NUM, "single-stroke positive ground flashes at or above this are suspects", 0.0, None),
+        "positive_min_ka": Key(20.0, _NUM, "positive ground flashes (one stroke or more) with a positive ground stroke at or above this are suspects", 0.0, None),
         "negative_max_abs_ka": Key(20.0, _NUM, "a negative stroke weaker than this |Ip| may start continuing current", 0.0, None, True),
         "min_interval_ms": Key(100.0, _NUM, "interval after such a stroke, same ground contact, that raises suspicion", 0.0, None, True),
     },

@@ -20,9 +20,9 @@ and ``source_row`` (its input line).
 
 References
 ----------
-.. [BarShalom2001] Bar-Shalom, Y., Li, X. R. and Kirubarajan, T. (2001). Estimation with
-   Applications to Tracking and Navigation. Wiley (combining independent Gaussian estimates;
-   from memory).
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [BarShalom2001] Combining independent Gaussian estimates by inverse-covariance weighting.
 """
 
 from __future__ import annotations

@@ -13,10 +13,10 @@ rasterised inside the SVG, so the report stays small.
 
 References
 ----------
-.. [1] Snyder, J. P. (1987). Map Projections: A Working Manual. USGS Professional Paper 1395
-       (azimuthal equidistant projection: true distance and direction from the centre).
-.. [2] Okabe, M. and Ito, K. (2008). Color Universal Design (the palette of
-       :mod:`debrief.palette`).
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [Snyder1987] Azimuthal equidistant projection: true distance and direction from the centre.
+.. [Okabe2008] The colour-blind-safe palette of :mod:`debrief.palette`.
 """
 
 from __future__ import annotations

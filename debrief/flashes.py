@@ -28,22 +28,13 @@ table, ``flash_id`` from 1 in first-stroke time order.
 
 References
 ----------
-.. [1] Cummins, K. L., M. J. Murphy, E. A. Bardo, W. L. Hiscox, R. B. Pyle and A. E. Pifer (1998).
-       A combined TOA/MDF technology upgrade of the U.S. National Lightning Detection Network.
-       J. Geophys. Res. 103(D8), 9035-9044. (Grouping criteria 1 s / 0.5 s / 10 km; the
-       15-stroke cap is from memory.)
-.. [2] Thottappillil, R., V. A. Rakov, M. A. Uman, W. H. Beasley, M. J. Master and
-       D. V. Shelukhin (1992). Lightning subsequent-stroke electric field peak greater than the
-       first stroke peak and multiple ground terminations. J. Geophys. Res. 97(D7), 7503-7509.
-.. [3] Poelman, D. R., W. Schulz, S. Pedeboy, D. Hill, M. Saba, H. Hunt, L. Schwalt, C. Vergeiner,
-       C. T. Mata, C. Schumann and T. Warner (2021). Global ground strike point characteristics in
-       negative downward lightning flashes - Part 1. Nat. Hazards Earth Syst. Sci. 21, 1909-1919.
-.. [4] Cummins, K. L. and M. J. Murphy (2009). An overview of lightning locating systems: history,
-       techniques, and data uses, with an in-depth look at the U.S. NLDN. IEEE Trans. Electromagn.
-       Compat. 51(3), 499-518. (Low-amplitude positive reports; from memory.)
-.. [5] Biagi, C. J., K. L. Cummins, K. E. Kehoe and E. P. Krider (2007). National Lightning
-       Detection Network (NLDN) performance in southern Arizona, Texas, and Oklahoma in 2003-2004.
-       J. Geophys. Res. 112, D05208. (From memory.)
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [Cummins1998] Grouping criteria 1 s / 0.5 s / 10 km (the 15-stroke cap is from memory).
+.. [Thottappillil1992] Multiple ground terminations of one flash.
+.. [Poelman2021] Ground strike points of negative flashes.
+.. [CumminsMurphy2009] Low-amplitude positive reports are often cloud pulses (from memory).
+.. [Biagi2007] Low-amplitude positive reports (from memory).
 """
 
 from __future__ import annotations
@@ -489,10 +480,10 @@ def group_flashes(strokes: pd.DataFrame, config: EventConfig | None = None, **cr
 
     References
     ----------
-    Cummins et al. (1998) [1]_ for the grouping criteria (15-stroke cap from memory);
-    Thottappillil et al. (1992) [2]_ and Poelman et al. (2021) [3]_ for ground contacts;
-    Cummins & Murphy (2009) [4]_ and Biagi et al. (2007) [5]_ for low-amplitude positive reports
-    (from memory). See the module docstring.
+    Cummins et al. (1998) [Cummins1998]_ for the grouping criteria (15-stroke cap from memory);
+    Thottappillil et al. (1992) [Thottappillil1992]_ and Poelman et al. (2021) [Poelman2021]_ for
+    ground contacts; Cummins & Murphy (2009) [CumminsMurphy2009]_ and Biagi et al. (2007)
+    [Biagi2007]_ for low-amplitude positive reports (from memory). See the module docstring.
     """
     crit = grouping_criteria(config, **criteria)
     out, t_ns, lat, lon, ip, kind = _prepare(strokes)

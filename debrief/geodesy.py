@@ -6,8 +6,9 @@ and bearings from the centre are exact and nearby distances nearly so.
 
 References
 ----------
-.. [1] Karney, C. F. F. (2013). Algorithms for geodesics. Journal of Geodesy 87, 43-55.
-       doi:10.1007/s00190-012-0578-z
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [Karney2013] Geodesics on the ellipsoid (as implemented by GeographicLib and pyproj).
 """
 
 from __future__ import annotations
@@ -38,7 +39,7 @@ def inverse_km(lat1_deg, lon1_deg, lat2_deg, lon2_deg):
 
     References
     ----------
-    Karney (2013), via pyproj.Geod.inv.
+    [Karney2013], via pyproj.Geod.inv.
     """
     a = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (lat1_deg, lon1_deg, lat2_deg, lon2_deg)))
     shape = a[0].shape

@@ -11,15 +11,14 @@ taken as magnitudes (the sign is polarity). Overhead shield wires are not modell
 
 References
 ----------
-.. [1] IEEE Std 1410-2010, IEEE Guide for Improving the Lightning Performance of Electric Power
-       Overhead Distribution Lines. (Equations here are from memory, not checked against the text.)
-.. [2] IEEE Std 1243-1997, IEEE Guide for Improving the Lightning Performance of Transmission
-       Lines. (From memory.)
-.. [3] Rusck, S. (1958). Induced lightning over-voltages on power-transmission lines with special
-       reference to the over-voltage protection of low-voltage networks. Trans. Royal Inst.
-       Technology, Stockholm, No. 120. (From memory.)
-.. [4] Eriksson, A. J. (1987). An improved electrogeometric model for transmission line shielding
-       analysis. IEEE Trans. Power Delivery PWRD-2(3), 871-886. (From memory.)
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [IEEE1410] Electrogeometric model, induced-voltage method, the 1.5 CFO rule (equations here
+       are from memory, not checked against the text).
+.. [IEEE1243] Electrogeometric model and its ground factor (from memory).
+.. [Rusck1958] Induced voltage of a line near a stroke (from memory).
+.. [Eriksson1987] Attractive radius Ra = 0.67 h^0.6 I^0.74 and line incidence
+       N = Ng (28 h^0.6 + b)/10 (from memory, low confidence).
 """
 
 from __future__ import annotations
@@ -59,7 +58,7 @@ def striking_distance_m(peak_current_ka):
 
     References
     ----------
-    IEEE Std 1410-2010 and IEEE Std 1243-1997 (electrogeometric model), from memory.
+    [IEEE1410]; [IEEE1243] (electrogeometric model), from memory.
     """
     return 10.0 * np.abs(_f(peak_current_ka)) ** 0.65
 
@@ -83,7 +82,7 @@ def ground_factor(height_m, model: str = "ieee1410"):
 
     References
     ----------
-    IEEE Std 1410-2010; IEEE Std 1243-1997 (from memory).
+    [IEEE1410]; [IEEE1243] (from memory).
     """
     h = _f(height_m)
     if model == "ieee1410":
@@ -111,7 +110,7 @@ def eriksson_radius_m(peak_current_ka, height_m):
 
     References
     ----------
-    Eriksson, A. J. (1987), IEEE Trans. Power Delivery PWRD-2(3) (from memory, low confidence).
+    [Eriksson1987] (from memory, low confidence).
     """
     return 0.67 * _f(height_m) ** 0.6 * np.abs(_f(peak_current_ka)) ** 0.74
 
@@ -138,7 +137,7 @@ def y_min_m(peak_current_ka, height_m, model: str = "ieee1410"):
 
     References
     ----------
-    IEEE Std 1410-2010 (indirect-stroke method); IEEE Std 1243-1997; Eriksson (1987). From memory.
+    [IEEE1410] (indirect-stroke method); [IEEE1243]; [Eriksson1987]. From memory.
     """
     if model not in MODELS:
         raise ValueError(f"unknown striking-distance model {model!r}; use one of {', '.join(MODELS)}")
@@ -157,7 +156,7 @@ def rusck_factor(return_stroke_speed_m_s=RETURN_STROKE_SPEED_M_S, c_m_s: float =
 
     References
     ----------
-    Rusck (1958); IEEE Std 1410-2010 (from memory).
+    [Rusck1958]; [IEEE1410] (from memory).
     """
     beta = _f(return_stroke_speed_m_s) / c_m_s
     return 1.0 + (beta / np.sqrt(2.0)) / np.sqrt(1.0 - beta**2 / 2.0)
@@ -190,7 +189,7 @@ def rusck_induced_kv(peak_current_ka, height_m, distance_m, *,
 
     References
     ----------
-    Rusck (1958); IEEE Std 1410-2010, induced-voltage formula (from memory).
+    [Rusck1958]; [IEEE1410], induced-voltage formula (from memory).
     """
     k = rusck_factor(return_stroke_speed_m_s, c_m_s)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -229,7 +228,7 @@ def y_flashover_m(peak_current_ka, height_m, cfo_kv, *,
 
     References
     ----------
-    IEEE Std 1410-2010: induced flashover when Umax > 1.5 CFO; Rusck (1958). From memory.
+    [IEEE1410]: induced flashover when Umax > 1.5 CFO; [Rusck1958]. From memory.
     """
     k = rusck_factor(return_stroke_speed_m_s, c_m_s)
     return Z0_OHM * np.abs(_f(peak_current_ka)) * _f(height_m) * k / (INDUCED_CFO_FACTOR * _f(cfo_kv))
@@ -267,6 +266,6 @@ def direct_strikes_per_100km_yr(ground_flash_density, height_m, spacing_m=0.0):
 
     References
     ----------
-    Eriksson, A. J. (1987), IEEE Trans. Power Delivery PWRD-2(3); IEEE Std 1410-2010 (from memory).
+    [Eriksson1987]; [IEEE1410] (from memory).
     """
     return _f(ground_flash_density) * (28.0 * _f(height_m) ** 0.6 + _f(spacing_m)) / 10.0

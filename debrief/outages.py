@@ -38,11 +38,11 @@ single conductors over flat, perfectly conducting ground (IEEE Std 1410's simpli
 
 References
 ----------
-.. [1] IEEE Std 1410-2010, IEEE Guide for Improving the Lightning Performance of Electric Power
-       Overhead Distribution Lines (electrogeometric model, Rusck's formula, the 1.5 CFO rule;
-       from memory).
-.. [2] Rusck, S. (1958). Induced lightning over-voltages on power-transmission lines with special
-       reference to the over-voltage protection of low-voltage networks (from memory).
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [IEEE1410] Electrogeometric model, Rusck's formula, the 1.5 CFO rule (from memory).
+.. [Rusck1958] Induced voltage of a line near a stroke (from memory).
+.. [Eriksson1987] Expected direct strikes per line length (from memory).
 """
 
 from __future__ import annotations
@@ -216,7 +216,7 @@ def stroke_line_physics(strokes: pd.DataFrame, line: pd.Series, config=None, *, 
 
     References
     ----------
-    IEEE Std 1410-2010 and Rusck (1958) via :mod:`debrief.lines`; the corridor probability of
+    [IEEE1410] and [Rusck1958] via :mod:`debrief.lines`; the corridor probability of
     :func:`debrief.uncertainty.p_within_corridor`.
     """
     from .uncertainty import p_within_corridor
@@ -375,7 +375,7 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
 
     References
     ----------
-    IEEE Std 1410-2010; Rusck (1958) (see :mod:`debrief.lines`).
+    [IEEE1410]; [Rusck1958] (see :mod:`debrief.lines`).
     """
     config, lc = _settings(config)
     if lc["possible_p"] > lc["likely_p"]:
@@ -802,7 +802,7 @@ def line_exposure(strokes: pd.DataFrame, lines: pd.DataFrame, config=None) -> pd
 
     References
     ----------
-    Eriksson (1987), IEEE Trans. PWRD-2(3); IEEE Std 1410-2010 (from memory).
+    [Eriksson1987]; [IEEE1410] (from memory).
     """
     config, lc = _settings(config)
     strokes = strokes.reset_index(drop=True)

@@ -14,14 +14,14 @@ What is counted where:
 
 References
 ----------
-.. [1] IEEE Std 1410 (Guide for improving the lightning performance of electric power overhead
-       distribution lines) and IEEE Std 1243-1997 (transmission lines): first negative stroke
-       P(I >= i) = 1 / (1 + (i/31)^2.6); subsequent 1 / (1 + (i/12)^2.7) (equations from memory;
-       check values in REFERENCES.md section 3).
-.. [2] Rakov, V. A. and Uman, M. A. (2003). Lightning: Physics and Effects. Cambridge University
-       Press (multiplicity; from memory).
-.. [3] Saba, M. M. F. et al. (2010). J. Geophys. Res., doi:10.1029/2010JD014330 (interstroke
-       intervals, positive flashes).
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [IEEE1410] First negative stroke P(I >= i) = 1 / (1 + (i/31)^2.6); subsequent
+       1 / (1 + (i/12)^2.7) (equations from memory; check values computed from them in
+       tests/test_polarity.py).
+.. [IEEE1243] The same distributions for transmission lines (from memory).
+.. [Rakov2003] Multiplicity of negative flashes (from memory).
+.. [Saba2010] Interstroke intervals, positive flashes.
 """
 
 from __future__ import annotations
@@ -153,7 +153,7 @@ def interstroke_summary(flashes: pd.DataFrame, type: str | None = "CG") -> pd.Da
 
     References
     ----------
-    Saba et al. (2010); Thottappillil et al. (1992), J. Geophys. Res. 97.
+    [Saba2010]; [Thottappillil1992].
     """
     _need(flashes, ("type", "polarity", "interstroke_ms"), "interstroke_summary")
     f = _of_type(flashes, type, ("polarity", "interstroke_ms"))
@@ -311,7 +311,7 @@ def ieee_exceedance(i_ka, kind: str = "first"):
 
     References
     ----------
-    IEEE Std 1410 and IEEE Std 1243-1997 (equations from memory; REFERENCES.md section 3).
+    [IEEE1410] and [IEEE1243] (equations from memory).
     """
     if kind not in IEEE_PARAMETERS:
         raise InputError(f"kind must be 'first' or 'subsequent', got {kind!r}")
@@ -325,7 +325,7 @@ def ieee_conditional_cdf(i_ka, kind: str = "first", floor_ka: float = 0.0):
 
     References
     ----------
-    IEEE Std 1410 / IEEE Std 1243-1997 (from memory), conditioned on the detection floor.
+    [IEEE1410] / [IEEE1243] (from memory), conditioned on the detection floor.
     """
     i = np.asarray(i_ka, dtype=float)
     p_floor = ieee_exceedance(floor_ka, kind)
@@ -379,7 +379,7 @@ def compare_reference(strokes: pd.DataFrame, floor_ka: float | None = None, conf
 
     References
     ----------
-    IEEE Std 1410 / IEEE Std 1243-1997 (from memory); Kolmogorov-Smirnov statistic as in
+    [IEEE1410] / [IEEE1243] (from memory); Kolmogorov-Smirnov statistic as in
     ``scipy.stats.kstest``.
     """
     if floor_ka is None:

@@ -35,10 +35,13 @@ from the WGS84 geodesic), the same plane as :class:`debrief.geodesy.LocalPlane`.
 
 References
 ----------
-.. [1] Cummins, K. L. and Murphy, M. J. (2009). An overview of lightning locating systems:
-       history, techniques, and data uses. IEEE Trans. EMC 51(3), 499-518 (detection
-       efficiency and location error; from memory).
-.. [2] Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55.
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [CumminsMurphy2009] Detection efficiency and location error (from memory).
+.. [Karney2013] Geodesics on the WGS84 ellipsoid.
+.. [BarShalom2001] Combining the strokes of one contact into one fix (via debrief.contacts).
+.. [Garwood1936] Exact Poisson limits: the upper bound of the unrecorded-flash chance.
+.. [Hanley1983] The rule of three: with nothing recorded, about 3 events bound the mean at 95 %.
 """
 
 from __future__ import annotations
@@ -763,8 +766,8 @@ def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, co
     References
     ----------
     Bivariate-normal location error: :mod:`debrief.uncertainty`; combined fixes:
-    :mod:`debrief.contacts` ([BarShalom2001]); detection efficiency: [CumminsMurphy2009]; the
-    upper bound of the unrecorded-flash chance: [Garwood1936].
+    :mod:`debrief.contacts` [BarShalom2001]_; detection efficiency: Cummins and Murphy (2009)
+    [CumminsMurphy2009]_; the upper bound of the unrecorded-flash chance [Garwood1936]_.
     """
     _validate_site(lat_deg, lon_deg, radius_km)
     if index is None:

@@ -27,26 +27,19 @@ The generator is vectorised: no Python loop per stroke or per flash.
 
 References
 ----------
-Titles are from memory; the figures are those of REFERENCES.md sections 3, 6 and 7.
+Full citations in :mod:`debrief.references` (``docs/references.md``).
 
-.. [1] Rakov, V. A. and Uman, M. A. (2003). Lightning: Physics and Effects. Cambridge University
-       Press (negative multiplicity 3-5, 15-20% single-stroke; from memory).
-.. [2] Saba, M. M. F. et al. (2010). High-speed video observations of positive lightning
-       flashes to ground. J. Geophys. Res. 115, D24201, doi:10.1029/2010JD014330 (81% single-stroke positives, 1.2 strokes per
-       positive flash, GM interval 94 ms for positives, median +Ip 39.4 kA, 75% of positives and
-       about 30% of negatives with long continuing current, GM negative interval about 60 ms).
-.. [3] Thottappillil, R. et al. (1992). Lightning subsequent-stroke electric field peak greater
-       than the first stroke peak and multiple ground terminations. J. Geophys. Res. 97
-       (GM interstroke interval 57 ms).
-.. [4] CIGRE Technical Brochure 549 (2013), Lightning parameters for engineering applications
-       (first negative stroke lognormal, median 31.1 kA, sigma_ln 0.484; subsequent 12.3 kA,
-       sigma_ln 0.53; as cited by open-source line-performance code, values from memory).
-.. [5] Poelman, D. R. et al. (2021). Global ground strike point characteristics in negative
-       downward lightning flashes, Part 1/2. Nat. Hazards Earth Syst. Sci. 21, 1909 and 1921
-       (1.56 ground strike points per flash; new contacts a median 1.3-2.75 km from the first).
-.. [6] Kitagawa, N., Brook, M. and Workman, E. J. (1962). Continuing currents in cloud-to-ground
-       lightning discharges. J. Geophys. Res. 67; Ballarotti, M. G. et al. (2005), J. Geophys.
-       Res. 110 (long continuing current >= 40 ms; from memory).
+.. [Rakov2003] Negative multiplicity 3-5, 15-20% single-stroke (from memory).
+.. [Saba2010] 81% single-stroke positives, 1.2 strokes per positive flash, GM interval 94 ms
+       for positives, median +Ip 39.4 kA, 75% of positives and about 30% of negatives with long
+       continuing current, GM negative interval about 60 ms.
+.. [Thottappillil1992] GM interstroke interval 57 ms.
+.. [CIGRE549] First negative stroke lognormal, median 31.1 kA, sigma_ln 0.484; subsequent
+       12.3 kA, sigma_ln 0.53 (as cited by open-source line-performance code, values from memory).
+.. [Poelman2021] 1.56 ground strike points per flash; new contacts a median 1.3-2.75 km from the
+       first (from memory).
+.. [Kitagawa1962] Long continuing current >= 40 ms (from memory).
+.. [Ballarotti2005] Long continuing current >= 40 ms (from memory).
 """
 
 from __future__ import annotations
@@ -184,8 +177,8 @@ def generate_storm(
 
     References
     ----------
-    See the module docstring: Rakov & Uman 2003; Saba et al. 2010; Thottappillil et al. 1992;
-    CIGRE TB 549 (2013); Poelman et al. 2021; Kitagawa et al. 1962.
+    See the module docstring: [Rakov2003]; [Saba2010]; [Thottappillil1992]; [CIGRE549];
+    [Poelman2021]; [Kitagawa1962]; [Ballarotti2005].
     """
     if duration_h <= 0 or region_km <= 0 or n_cells < 1:
         raise InputError("duration_h, region_km and n_cells must be positive")

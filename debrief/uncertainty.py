@@ -37,12 +37,11 @@ Methods
 
 References
 ----------
-.. [1] Johnson, N. L., Kotz, S. and Balakrishnan, N. (1994). Continuous Univariate
-       Distributions, Vol. 1, 2nd ed., Wiley: chi-square distribution (2-D normal contours).
-.. [2] Owen, D. B. (1956). Tables for computing bivariate normal probabilities. Annals of
-       Mathematical Statistics 27(4), 1075-1090 (the T function; triangle probabilities).
-.. [3] Cummins, K. L. and Murphy, M. J. (2009). An overview of lightning location systems:
-       history, techniques, and data uses. IEEE Trans. EMC 51(3), 499-518 (error ellipses).
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [Johnson1994] Chi-square distribution (2-D normal contours).
+.. [Owen1956] The T function; triangle probabilities.
+.. [CumminsMurphy2009] Error ellipses of lightning location networks (from memory).
 """
 
 from __future__ import annotations
@@ -91,7 +90,7 @@ def sigma_scale(p):
 
     References
     ----------
-    Chi-square with 2 degrees of freedom: ``P(r^2 <= k^2) = 1 - exp(-k^2/2)`` [1]_.
+    Chi-square with 2 degrees of freedom: ``P(r^2 <= k^2) = 1 - exp(-k^2/2)`` [Johnson1994]_.
     """
     arr = np.asarray(p, dtype=float)
     if not np.all(np.isfinite(arr)) or np.any((arr <= 0.0) | (arr >= 1.0)):
@@ -120,7 +119,7 @@ def ellipse_covariance(semi_major_km, semi_minor_km, major_bearing_deg, confiden
 
     References
     ----------
-    ``S = sa^2 u u' + sb^2 v v'`` with u = (sin b, cos b) the major-axis unit vector [1]_.
+    ``S = sa^2 u u' + sb^2 v v'`` with u = (sin b, cos b) the major-axis unit vector [Johnson1994]_.
     """
     a = np.asarray(semi_major_km, dtype=float)
     b = np.asarray(semi_minor_km, dtype=float)
@@ -205,9 +204,7 @@ def combine_fixes(x_km, y_km, sxx, syy, sxy, group):
 
     References
     ----------
-    .. [BarShalom2001] Bar-Shalom, Y., Li, X. R. and Kirubarajan, T. (2001). Estimation with
-       Applications to Tracking and Navigation. Wiley (the information form of combining
-       independent Gaussian estimates; from memory).
+    [BarShalom2001]_ (the information form of combining independent Gaussian estimates).
     """
     x, y, a, b, c = (np.asarray(v, dtype=float) for v in (x_km, y_km, sxx, syy, sxy))
     labels, inv = np.unique(np.asarray(group), return_inverse=True)
@@ -300,7 +297,7 @@ def p_within_circle(dx_km, dy_km, sxx, syy, sxy, radius_km):
     References
     ----------
     Circular error: ``P = F_ncx2((R/s)^2; 2, (d/s)^2)``, the non-central chi-square distribution
-    with 2 degrees of freedom [1]_. Elliptical error: principal-axis 1-D integral with
+    with 2 degrees of freedom [Johnson1994]_. Elliptical error: principal-axis 1-D integral with
     Gauss-Legendre quadrature (module notes).
     """
     shape, (dx, dy, sxx, syy, sxy, r) = _broadcast(dx_km, dy_km, sxx, syy, sxy, radius_km)
@@ -340,7 +337,7 @@ def _edge_terms(px, py, qx, qy):
 
     The standard bivariate normal probability of the triangle (0, p, q), signed by orientation,
     is ``sign * [(atan(a_q) - atan(a_p)) / 2 pi - (T(h, a_q) - T(h, a_p))]`` with h the distance
-    from the mean to the edge's line and ``a = s / h`` the positions along it [2]_. Owen's T is
+    from the mean to the edge's line and ``a = s / h`` the positions along it [Owen1956]_. Owen's T is
     evaluated only for edges nearer than 9 (whitened) units: beyond, T(h, a) <= exp(-h^2/2)/4
     < 1e-18. An edge whose line passes through the mean has a degenerate triangle and adds 0
     (the limit of the formula), which keeps a mean on the boundary exact.
@@ -445,7 +442,7 @@ def p_within_polygon(dx_km, dy_km, sxx, syy, sxy, polygon_x_km, polygon_y_km, *,
 
     References
     ----------
-    Triangle decomposition of bivariate normal probabilities with Owen's T function [2]_
+    Triangle decomposition of bivariate normal probabilities with Owen's T function [Owen1956]_
     (``scipy.special.owens_t``), after whitening by the Cholesky factor of the covariance.
     """
     shape, (dx, dy, sxx, syy, sxy) = _broadcast(dx_km, dy_km, sxx, syy, sxy)
@@ -500,7 +497,7 @@ def _p_within_corridor_polygon(x_km, y_km, sxx, syy, sxy, line_x_km, line_y_km, 
 
     References
     ----------
-    Polygon probability by Owen's T function [2]_ applied to the buffer polygon (shapely).
+    Polygon probability by Owen's T function [Owen1956]_ applied to the buffer polygon (shapely).
     """
     import shapely
 
@@ -983,7 +980,7 @@ def p_within_corridor(x_km, y_km, sxx, syy, sxy, line_x_km, line_y_km, half_widt
 
     References
     ----------
-    Triangle probabilities of the bivariate normal by Owen's T function [2]_, of which the
+    Triangle probabilities of the bivariate normal by Owen's T function [Owen1956]_, of which the
     boundary integral is the curved-edge form; Gauss-Legendre quadrature.
     """
     shape, (x, y, sxx, syy, sxy, w) = _broadcast(x_km, y_km, sxx, syy, sxy, half_width_km)

@@ -14,7 +14,7 @@ from debrief.geodesy import LocalPlane
 
 ROOT = Path(__file__).resolve().parents[1]
 
-# REFERENCES.md worked example, classic rule of Cummins et al. 1998 (from memory):
+# Worked example constructed here, grouped by the classic rule of Cummins et al. 1998 [Cummins1998] (from memory):
 # (t s, x km, y km, Ip kA) -> flash 1,1,1,1,2,3,4,5,4
 WORKED = [
     (0.000, 0.0, 0.0, -25), (0.055, 0.6, 0.3, -12), (0.140, 4.0, 0.0, -9), (0.600, 0.2, 0.1, -11),
@@ -65,8 +65,8 @@ def test_worked_example_end_to_end(strokes_csv, tmp_path):
     assert f["interstroke_ms"].astype(str).tolist() == ["55.0;85.0;460.0", "", "", "60.0", ""]
     assert f["time"].tolist()[:2] == ["2026-07-14T19:00:00Z", "2026-07-14T19:00:01.05Z"]
     # continuing-current flags filled: a single-stroke positive ground flash with Ip >= 20 kA is a
-    # suspect (heuristic of REFERENCES.md section 7, after Saba et al. 2010: 75 % of positive
-    # flashes carry long continuing current)
+    # suspect (our heuristic after Saba et al. 2010 [Saba2010]: 75 % of positive flashes carry
+    # long continuing current)
     assert f["cc_suspect"].tolist() == [False, False, False, False, True]
     assert f["cc_reasons"].astype(str).str.len().tolist()[4] > 0
     s = pd.read_csv(sout)

@@ -16,7 +16,7 @@ from scipy import stats
 from debrief.cli import main
 
 ROOT = Path(__file__).resolve().parents[1]
-K50 = math.sqrt(-2 * math.log(0.5))  # chi-square 2 df, 50 % (REFERENCES.md section 2)
+K50 = math.sqrt(-2 * math.log(0.5))  # chi-square 2 df, 50 % ([Johnson1994]; computed from the formula)
 SITE = (45.5, -93.2)
 
 

@@ -1,7 +1,7 @@
 """Static report figures: deterministic SVG, maps in a true local plane, ellipses, histograms, rates.
 
 Tables here are small scenarios built in the test; the expected numbers come from outside
-references (geographiclib, the ellipse covariance of REFERENCES.md section 2, numpy) or from the
+references (geographiclib, the ellipse covariance computed from the 2-D normal, numpy) or from the
 scenario's construction, never from the figure code's own output.
 """
 
@@ -115,7 +115,7 @@ def test_density_grid_conserves_points_inside_extent(points, cell):
 
 
 def test_ellipse_matches_published_covariance():
-    # REFERENCES.md section 2 (X, from the 2-D normal): a 0.5 x 0.25 km 50 % ellipse at bearing
+    # Computed from the 2-D normal [Johnson1994] (X, numpy): a 0.5 x 0.25 km 50 % ellipse at bearing
     # 30 deg has Sxx 0.078897, Syy 0.146524, Sxy 0.058566 km^2, with sigma = axis / k_p and
     # k_p = sqrt(-2 ln(1 - p)) (chi-square, 2 degrees of freedom).
     sxx, syy, sxy = 0.078897, 0.146524, 0.058566

@@ -58,8 +58,8 @@ def ids(strokes):
 # The worked example
 # ----------------------------------------------------------------------------------------------
 
-# REFERENCES.md worked example, classic rule of Cummins et al. 1998 (from memory), with the
-# same-polarity rule: (t s, x km, y km, Ip kA) -> flash.
+# Worked example constructed here, its flashes worked out with the classic rule of Cummins et al. 1998
+# [Cummins1998] (from memory) and the same-polarity rule: (t s, x km, y km, Ip kA) -> flash.
 WORKED = [
     (0.000, 0.0, 0.0, -25), (0.055, 0.6, 0.3, -12), (0.140, 4.0, 0.0, -9), (0.600, 0.2, 0.1, -11),
     (1.050, 0.3, 0.0, -10), (1.100, 12.0, 0.0, -30), (1.700, 0.4, 0.2, -8), (1.750, 12.5, 0.5, +45),
@@ -70,7 +70,7 @@ WORKED = [
 @pytest.mark.parametrize("impl", [group_flashes, group_flashes_reference])
 def test_worked_example(impl):
     strokes, flashes = impl(table(WORKED), same_polarity=True)
-    # REFERENCES.md worked example (Cummins et al. 1998 rule, from memory)
+    # worked example constructed here ([Cummins1998] rule, from memory)
     assert ids(strokes) == [1, 1, 1, 1, 2, 3, 4, 5, 4]
     assert flashes["multiplicity"].tolist() == [4, 1, 1, 2, 1]
     assert flashes["multiplicity"].mean() == pytest.approx(1.8)

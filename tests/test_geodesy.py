@@ -6,9 +6,10 @@ from geographiclib.geodesic import Geodesic
 
 from debrief.geodesy import LocalPlane, centre_of, haversine_km, inverse_km
 
-# Pairs from REFERENCES.md section 8: the GeographicLib documentation's Berkeley - Port Moresby
-# example (10700471.955233702 m), Vincenty (1975) Flinders Peak - Buninyong (54972.271 m, from
-# memory), the equator degree (a * pi / 180), and short pairs of the kind a site check sees.
+# Pairs: the GeographicLib documentation's Berkeley - Port Moresby example (10700471.955233702 m;
+# GeographicLib implements [Karney2013]), Vincenty (1975) [Vincenty1975] Flinders Peak - Buninyong
+# (54972.271 m, from memory), the equator degree (a * pi / 180), and short pairs of the kind a site
+# check sees (constructed here).
 PAIRS = [
     ((0.0, 0.0), (0.0, 1.0)),
     ((37.87622, -122.23558), (-9.4047, 147.1597)),
@@ -55,7 +56,7 @@ def test_inverse_broadcasts():
 
 
 def test_haversine_close_to_geodesic_for_prefilter():
-    # Haversine on the mean sphere is within about 0.5% of the ellipsoid (REFERENCES.md section 8).
+    # Haversine on the mean sphere is within about 0.5% of the ellipsoid (computed with GeographicLib).
     for p1, p2 in PAIRS[:5]:
         d, _ = inverse_km(*p1, *p2)
         assert haversine_km(*p1, *p2) == pytest.approx(float(d), rel=6e-3)

@@ -1,8 +1,8 @@
 """Line physics against the formulas' published forms and values computed from them.
 
-Values marked [X] are REFERENCES.md §4-§5 figures computed from the formulas (numpy); the
-formulas themselves are from IEEE Std 1410-2010 / IEEE Std 1243-1997 / Rusck (1958) /
-Eriksson (1987) as remembered (REFERENCES.md marks them M: from memory).
+Values marked [X] are computed from the formulas here (numpy), not taken from a publication; the
+formulas themselves are from [IEEE1410] / [IEEE1243] / [Rusck1958] / [Eriksson1987] as
+remembered (from memory).
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ from debrief.io.lines import read_lines, read_outages
 # --- electrogeometric model: IEEE Std 1410 / IEEE Std 1243 (from memory), values [X] -----------
 
 def test_striking_distance_values():
-    # r = 10 I^0.65 (IEEE Std 1410 / 1243 EGM, from memory); REFERENCES.md §4 [X]
+    # r = 10 I^0.65 ([IEEE1410] / [IEEE1243] EGM, from memory); computed from the formula [X]
     np.testing.assert_allclose(L.striking_distance_m([10, 31, 100]), [44.668, 93.193, 199.526], atol=5e-4)
     # sign of the current is polarity only
     assert L.striking_distance_m(-31) == pytest.approx(93.193, abs=5e-4)
@@ -69,7 +69,7 @@ def test_rusck_factor():
     # K = 1 + (b/sqrt2)/sqrt(1 - b^2/2), b = v/c, c = 3e8 (IEEE Std 1410, from memory); §5 [X]
     assert float(L.rusck_factor(1.2e8)) == pytest.approx(1.294884, abs=5e-7)
     assert float(L.rusck_factor(1.5e8)) == pytest.approx(1.377964, abs=5e-7)
-    # with c = 299792458 m/s +0.02 % (REFERENCES.md §5 [X])
+    # with c = 299792458 m/s +0.02 % (computed from the formula [X])
     assert float(L.rusck_factor(1.2e8, 299792458.0)) == pytest.approx(1.295106, abs=5e-7)
 
 

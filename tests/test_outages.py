@@ -93,7 +93,7 @@ def test_distance_vs_shapely_in_utm():
 
 def test_probabilities_vs_monte_carlo():
     # Seeded Monte Carlo: true positions ~ N(reported, S) in the line's plane (S from the 50 %
-    # ellipse, sigma = axis / 1.177410, REFERENCES.md §2); fraction within y_min and within the
+    # ellipse, sigma = axis / 1.177410, chi-square 2 df [Johnson1994]); fraction within y_min and within the
     # induced band. 2e5 samples: standard error <= 0.0011; tolerance 0.006.
     from debrief.uncertainty import ellipse_covariance
 

@@ -55,7 +55,7 @@ def build(specs):
     return s, f
 
 
-# Worked example of REFERENCES.md section 1 (computed there from the classic grouping rule):
+# Worked example constructed here (flashes worked out with the classic rule of [Cummins1998]):
 # multiplicities [4, 1, 1, 2, 1], mean 1.8, single-stroke 0.6, intervals 55/85/460/60 ms, GM 106.58 ms.
 WORKED = [
     ("CG", [(0, -25, 1), (55, -12, 1), (140, -9, 2), (600, -11, 1)]),
@@ -75,7 +75,7 @@ def test_multiplicity_of_worked_example():
     assert tab["negative_percent"].sum() == pytest.approx(100.0)
     assert tab.loc["1", "negative_percent"] == pytest.approx(50.0)
     means = P.mean_multiplicity(f)
-    assert means.loc["all", "mean_multiplicity"] == pytest.approx(1.8)  # REFERENCES.md section 1 [X]
+    assert means.loc["all", "mean_multiplicity"] == pytest.approx(1.8)  # worked example: 9 strokes / 5 flashes [X]
     assert means.loc["all", "single_stroke_share"] == pytest.approx(0.6)
     assert means.loc["negative", "mean_multiplicity"] == pytest.approx(2.0)
 
@@ -83,7 +83,7 @@ def test_multiplicity_of_worked_example():
 def test_interstroke_summary_of_worked_example():
     _, f = build(WORKED)
     out = P.interstroke_summary(f)
-    # REFERENCES.md section 1 worked example: GM of 55, 85, 460, 60 ms is 106.58 ms [X].
+    # worked example: GM of 55, 85, 460, 60 ms is 106.58 ms (computed from the formula) [X].
     assert out.loc["all", "geometric_mean_ms"] == pytest.approx(106.58, abs=0.01)
     assert out.loc["all", "median_ms"] == pytest.approx(72.5)
     assert out.loc["negative", "intervals"] == 4 and out.loc["negative", "flashes"] == 2
@@ -148,7 +148,7 @@ def test_first_subsequent_medians():
 
 
 @pytest.mark.parametrize("i_ka, first, subsequent", [
-    # REFERENCES.md section 3 check values [X] of IEEE Std 1410 / IEEE Std 1243 (equations from memory)
+    # check values [X] computed from the [IEEE1410] / [IEEE1243] formulas (equations from memory)
     (10, 0.94987, 0.62064), (20, 0.75758, 0.20113), (31, 0.50000, 0.07159),
     (60, 0.15227, 0.01280), (100, 0.04543, 0.00325),
 ])
@@ -234,7 +234,7 @@ def test_exceedance_curve_beside_the_reference():
     rng = np.random.default_rng(9)
     s, _ = build([("CG", [(0, -a, 1)]) for a in _ieee_sample(rng, 4000, "first")])
     cur = P.exceedance_curve(s, "first", floor_ka=10.0, currents_ka=[10.0, 31.0, 60.0])
-    # conditioned check values of REFERENCES.md section 3 (IEEE Std 1410, from memory):
+    # conditioned check values computed from the [IEEE1410] formula (from memory):
     # P(I >= 31 | I >= 10) = 0.5 / 0.94987, P(I >= 60 | I >= 10) = 0.15227 / 0.94987
     assert cur["ieee"].tolist() == pytest.approx([1.0, 0.5 / 0.94987, 0.15227 / 0.94987], abs=1e-5)
     assert cur["observed"].iloc[0] == 1.0

@@ -20,7 +20,7 @@ from debrief.geodesy import LocalPlane
 from debrief.io.sites import read_parcel, read_sites
 from debrief.uncertainty import ellipse_covariance
 
-K50 = math.sqrt(-2 * math.log(0.5))  # 1.177410 (chi-square 2 df; REFERENCES.md section 2)
+K50 = math.sqrt(-2 * math.log(0.5))  # 1.177410 (chi-square 2 df [Johnson1994]; computed from the formula)
 GEOD = Geodesic.WGS84  # GeographicLib, Karney (2013)
 
 
@@ -50,7 +50,7 @@ CFG = from_dict({"time_zone": "America/Chicago"})
 
 # --- geodesics against GeographicLib ----------------------------------------------------------
 
-PAIRS = [  # REFERENCES.md section 8 pairs (short ones), plus antimeridian and near-pole pairs
+PAIRS = [  # short pairs constructed here, Vincenty's pair [Vincenty1975], antimeridian and near-pole pairs
     ((35.0, -97.0), (35.01, -97.01)),
     ((45.0, 10.0), (45.0, 10.12734)),
     ((-(37 + 57 / 60 + 3.72030 / 3600), 144 + 25 / 60 + 29.52440 / 3600),
@@ -74,7 +74,7 @@ def test_distance_and_bearing_match_geographiclib(p1, p2):
 
 
 def test_flinders_buninyong_published_distance():
-    # Vincenty (1975): 54972.271 m (REFERENCES.md section 8, from memory there: M).
+    # Vincenty (1975) [Vincenty1975]: 54972.271 m (from memory; GeographicLib agrees to 1 mm above).
     p1, p2 = PAIRS[2]
     strokes = table([dict(latitude=p2[0], longitude=p2[1])])
     d = S.check_site(strokes, *p1, 60.0).candidates["distance_km"].iloc[0]

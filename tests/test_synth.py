@@ -130,7 +130,7 @@ def test_first_negative_stroke_currents_follow_the_cigre_lognormal(storm):
     t = storm[1]
     first = t[(t["flash_polarity"] == "negative") & (t["type"] == "CG") & (t["stroke_order"] == 1)]
     ip = first["peak_current_ka"].abs().to_numpy()
-    # CIGRE TB 549 (2013) as cited in REFERENCES.md section 3 (from memory): median 31.1 kA,
+    # CIGRE TB 549 (2013) [CIGRE549] as cited by open-source line code (from memory): median 31.1 kA,
     # sigma_ln 0.484. The sample median's log has sd 1.2533*0.484/sqrt(n) (~0.007): 5% is >6 sd.
     assert np.median(ip) == pytest.approx(31.1, rel=0.05)
     ks = stats.kstest(ip, stats.lognorm(s=0.484, scale=31.1).cdf).statistic

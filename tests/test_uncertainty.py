@@ -51,7 +51,7 @@ def _disc_dblquad(m, cov, r):
 
 @pytest.mark.parametrize("p, k", [(0.5, 1.177410), (0.9, 2.145966), (0.95, 2.447747), (0.99, 3.034854)])
 def test_sigma_scale_is_chi_square_quantile(p, k):
-    # scipy.stats.chi2.ppf(p, 2): 2-D normal contour holding p; values as in REFERENCES.md section 2 (X).
+    # scipy.stats.chi2.ppf(p, 2): 2-D normal contour holding p [Johnson1994]; values computed with scipy (X).
     assert U.sigma_scale(p) == pytest.approx(math.sqrt(stats.chi2.ppf(p, 2)), rel=1e-12)
     assert U.sigma_scale(p) == pytest.approx(k, abs=5e-7)
     # The 1-D factor (normal quantile 0.674490 for 50 %) must not be used.
@@ -59,7 +59,7 @@ def test_sigma_scale_is_chi_square_quantile(p, k):
 
 
 def test_one_sigma_ellipse_holds_39_percent():
-    # 1 - exp(-1/2) = 0.3935 (REFERENCES.md section 2; chi-square 2 df).
+    # 1 - exp(-1/2) = 0.3935 (chi-square 2 df [Johnson1994]; computed from the formula).
     assert stats.chi2.cdf(1.0, 2) == pytest.approx(0.393469, abs=1e-6)
     k = U.sigma_scale(stats.chi2.cdf(1.0, 2))
     assert k == pytest.approx(1.0, abs=1e-12)
@@ -72,7 +72,8 @@ def test_sigma_scale_rejects_bad_confidence(p):
 
 
 def test_covariance_check_case():
-    # REFERENCES.md section 2 (X): 0.5 x 0.25 km 50 % ellipse at 30 deg.
+    # Check case constructed here, computed from S = sa^2 u u' + sb^2 v v' with numpy (X):
+    # 0.5 x 0.25 km 50 % ellipse at 30 deg.
     sxx, syy, sxy = U.ellipse_covariance(0.5, 0.25, 30.0, 0.5)
     assert float(sxx) == pytest.approx(0.078897, abs=1e-6)
     assert float(syy) == pytest.approx(0.146524, abs=1e-6)
@@ -96,7 +97,7 @@ def test_covariance_orientation_north_and_east():
 
 @pytest.mark.parametrize("r_over_s, d_over_s", [(0.01, 0.0), (0.5, 0.3), (1.0, 1.0), (3.0, 2.5), (20.0, 19.0), (100.0, 101.0), (2.0, 8.0)])
 def test_circular_quadrature_matches_ncx2(r_over_s, d_over_s):
-    # Circular error: P = ncx2.cdf((R/s)^2, 2, (d/s)^2) (scipy.stats.ncx2; REFERENCES.md section 2).
+    # Circular error: P = ncx2.cdf((R/s)^2, 2, (d/s)^2) (scipy.stats.ncx2; [Johnson1994]).
     # The quadrature path (the one used for ellipses) is checked against it.
     s = 0.3
     exact = stats.ncx2.cdf(r_over_s**2, 2, d_over_s**2)
@@ -522,7 +523,7 @@ def test_missing_ellipses_need_a_default():
     assert filled.tolist() == [False, True, False]  # a circle needs no bearing
     k = U.sigma_scale(0.5)
     assert sxx[1] == pytest.approx((0.4 / k) ** 2) and sxy[1] == 0.0
-    assert sxx[0] == pytest.approx(0.078897, abs=1e-6)  # REFERENCES.md section 2 check case
+    assert sxx[0] == pytest.approx(0.078897, abs=1e-6)  # the check case of test_covariance_check_case
 
 
 def test_reach_bound_holds():

@@ -92,7 +92,8 @@ def render_text(s: dict) -> str:
     k = s["continuing_current"]
     rules = k["rules"]
     lines += ["", f"Continuing-current suspects: {k['suspects']:,} flashes "
-                  f"(rules: single positive >= {rules['positive_min_ka']:g} kA; gap >= {rules['min_interval_ms']:g} ms "
+                  f"(rules: positive ground flash with a positive stroke >= {rules['positive_min_ka']:g} kA, "
+                  f"one stroke or more; gap >= {rules['min_interval_ms']:g} ms "
                   f"after a negative stroke below {rules['negative_max_abs_ka']:g} kA, same contact)"]
     for code, n in k["by_reason"].items():
         lines.append(f"  {code}: {n:,} - {k['reasons'][code]['explanation']} ({k['reasons'][code]['source']})")

@@ -724,8 +724,8 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
 
     References
     ----------
-    .. [1] ISO 8601-1:2019, Date and time -- Representations for information interchange.
-    .. [2] IEEE Std 1003.1-2017 (POSIX), Base Definitions 4.16, Seconds Since the Epoch.
+    .. [ISO8601] Date and time representations (full citations: :mod:`debrief.references`).
+    .. [POSIX2017] Seconds Since the Epoch.
     """
     path = Path(path)
     if not path.exists():

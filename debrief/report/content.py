@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from .. import __version__
+from ..references import REFERENCES, cite
 
 #: Environment variable that may name the parameters file (else ``params.json`` in the cwd).
 PARAMS_ENV = "DEBRIEF_REPORT_PARAMS"
@@ -60,51 +61,42 @@ CAUTIONS = (
     "people who weigh all evidence, and defer to local codes, standards and licensed practice.",
 )
 
-#: Methods applied in the report, with the published source of each (module docstrings add more).
+#: Methods applied in the report, with the published source of each (module docstrings add more);
+#: citations by key from :mod:`debrief.references`.
 METHODS = (
     ("Stroke-to-flash grouping",
      "Strokes join a flash within a time from the previous stroke, a duration from the first stroke, "
      "a distance from the first stroke and a maximum number of strokes (settings under [grouping]).",
-     "Cummins, K. L. et al. (1998). A combined TOA/MDF technology upgrade of the U.S. National "
-     "Lightning Detection Network. J. Geophys. Res. 103(D8), 9035-9044."),
+     cite("Cummins1998")),
     ("Low-amplitude positive reports",
      "Positive ground reports below [grouping] likely_ic_below_ka are flagged as likely cloud pulses "
      "and left out of the positive share.",
-     "Cummins, K. L. and Murphy, M. J. (2009). An overview of lightning location systems: history, "
-     "techniques, and data uses. IEEE Trans. EMC 51(3), 499-518; Biagi, C. J. et al. (2007), "
-     "J. Geophys. Res. 112, D05208."),
+     cite("CumminsMurphy2009", "Biagi2007")),
     ("Location uncertainty",
      "A reported p-ellipse is taken as a contour of a bivariate normal: semi-axis = k_p sigma with "
      "k_p = sqrt(-2 ln(1 - p)) (chi-square with 2 degrees of freedom), e.g. 1.1774 for p = 0.5.",
-     "Johnson, Kotz and Balakrishnan (1994), Continuous Univariate Distributions Vol. 1; "
-     "Cummins and Murphy (2009)."),
+     cite("Johnson1994", "CumminsMurphy2009")),
     ("Continuing-current suspicion",
-     "Single-stroke positive ground flashes above a current threshold, and weak negative strokes "
-     "followed by a long interval in the same channel, are flagged as suspects.",
-     "Saba, M. M. F. et al. (2010). Positive leader characteristics from high-speed video "
-     "observations / continuing current statistics, J. Geophys. Res. 115, doi:10.1029/2010JD014330; "
-     "Rakov, V. A. and Uman, M. A. (2003). Lightning: Physics and Effects, Cambridge University Press."),
+     "Positive ground flashes (single- and multi-stroke) with a positive stroke at or above a "
+     "current threshold, and weak negative strokes followed by a long interval in the same channel, are "
+     "flagged as suspects.",
+     cite("Saba2010", "Saba2006", "Rakov1990", "Kitagawa1962")),
     ("Peak-current distributions",
      "Observed |peak current| compared above the detection floor with the log-logistic forms "
      "P(I >= i) = 1/(1 + (i/31)^2.6) (first strokes) and 1/(1 + (i/12)^2.7) (subsequent strokes).",
-     "IEEE Std 1410 (Guide for Improving the Lightning Performance of Electric Power Overhead "
-     "Distribution Lines); IEEE Std 1243-1997."),
+     cite("IEEE1410", "IEEE1243")),
     ("Direct strikes and induced overvoltage",
      "Electrogeometric model r = 10 I^0.65 m; induced voltage by Rusck's formula "
      "U = Z0 I h / y (1 + (beta/sqrt 2)/sqrt(1 - beta^2/2)), Z0 = 30 ohm; flashover when "
      "U > 1.5 CFO.",
-     "Rusck, S. (1958). Induced lightning over-voltages on power-transmission lines with special "
-     "reference to the over-voltage protection of low-voltage networks, Trans. Royal Inst. "
-     "Technology, Stockholm; IEEE Std 1410-2010; Eriksson, A. J. (1987). The incidence of "
-     "lightning strikes to power lines. IEEE Trans. PWRD-2(3), 859-870 (titles from memory)."),
+     cite("Rusck1958", "IEEE1410", "Eriksson1987")),
     ("Crew alert periods",
      "An alert starts with a stroke within the stop radius and ends a fixed time after the last "
      "such stroke (30 min, the 30-minute rule).",
-     "Holle, R. L., Lopez, R. E. and Zimmermann, C. (1999). Updated recommendations for lightning "
-     "safety - 1998. Bull. Amer. Meteor. Soc. 80, 2035-2041 (common practice)."),
+     cite("Holle1999") + " (common practice)"),
     ("Distances and bearings",
      "Geodesics on the WGS84 ellipsoid; maps and ellipse math in a local azimuthal equidistant plane.",
-     "Karney, C. F. F. (2013). Algorithms for geodesics. J. Geodesy 87, 43-55."),
+     cite("Karney2013")),
 )
 
 
@@ -362,7 +354,11 @@ _REF_HEAD = re.compile(r"^\s*References\s*\n\s*-{5,}\s*\n", re.M)
 
 
 def module_references(module_name: str) -> list[str]:
-    """The ``References`` entries of a module's docstring (numpydoc ``.. [n] ...`` items)."""
+    """The ``References`` entries of a module's docstring (numpydoc ``.. [Key] note`` items).
+
+    Each comes back as ``[Key] full citation (from debrief.references) Here: note``; an entry
+    whose key is not in the list comes back as written.
+    """
     if not _has_module(module_name):
         return []
     doc = importlib.import_module(module_name).__doc__ or ""
@@ -375,7 +371,7 @@ def module_references(module_name: str) -> list[str]:
         if re.match(r"^\.\. \[\w+\]", s):
             if current:
                 refs.append(current)
-            current = re.sub(r"^\.\. \[\w+\]\s*", "", s)
+            current = s[3:]  # "[Key] note": the key is resolved below
         elif s and current is not None and line.startswith((" ", "\t")):
             current += " " + s
         elif not s and current is not None:
@@ -385,11 +381,21 @@ def module_references(module_name: str) -> list[str]:
             break
     if current:
         refs.append(current)
-    return refs
+    return [_resolve_reference(r) for r in refs]
+
+
+def _resolve_reference(entry: str) -> str:
+    """``[Key] note`` -> ``[Key] citation Here: note`` when the key is in debrief.references."""
+    m = re.match(r"^\[(\w+)\]\s*(.*)$", entry)
+    if not m or m.group(1) not in REFERENCES:
+        return entry
+    key, note = m.groups()
+    return f"[{key}] {REFERENCES[key]}" + (f" Here: {note}" if note else "")
 
 
 CORE_MODULES = ("debrief.flashes", "debrief.polarity", "debrief.continuing_current", "debrief.uncertainty",
-                "debrief.geodesy", "debrief.sites", "debrief.alerts", "debrief.lines", "debrief.outages")
+                "debrief.contacts", "debrief.geodesy", "debrief.sites", "debrief.alerts", "debrief.lines",
+                "debrief.outages")
 
 
 def methods_html() -> str:

@@ -8,9 +8,10 @@ Outlines are built in the azimuthal equidistant plane about each centre (the
 
 References
 ----------
-.. [1] Snyder, J. P. (1987). Map Projections: A Working Manual. USGS Professional Paper 1395,
-       azimuthal equidistant projection (distance and azimuth from the centre are true).
-.. [2] Karney, C. F. F. (2013). Algorithms for geodesics. Journal of Geodesy 87, 43-55.
+Full citations in :mod:`debrief.references` (``docs/references.md``).
+
+.. [Snyder1987] Azimuthal equidistant projection (distance and azimuth from the centre are true).
+.. [Karney2013] Geodesics on the ellipsoid.
 """
 
 from __future__ import annotations
