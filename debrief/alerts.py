@@ -154,8 +154,8 @@ def alert_periods(strokes: pd.DataFrame, sites: pd.DataFrame, config=None, *, st
 
         k = per["site_index"].to_numpy()
         rad = np.where(per["level"].to_numpy() == "stop", stop[k], warn[k])
-        cov = check_places(coverage, lat[k], lon[k], rad, per["start"].to_numpy().astype("datetime64[ns]").astype(np.int64),
-                           per["all_clear"].to_numpy().astype("datetime64[ns]").astype(np.int64))
+        cov = check_places(coverage, lat[k], lon[k], rad, pd.DatetimeIndex(per["start"]).as_unit("ns").asi8,
+                           pd.DatetimeIndex(per["all_clear"]).as_unit("ns").asi8)
         per["coverage"] = cov["coverage"].to_numpy()
         per["coverage_note"] = cov["coverage_note"].to_numpy()
     per.insert(0, "site", sites["name"].to_numpy()[per.pop("site_index").to_numpy()])

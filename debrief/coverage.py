@@ -4,8 +4,8 @@ A stroke file says what the network recorded in some period over some area. Outs
 or area it says nothing: a site check there has no answer ("no conclusion"), never "no lightning".
 The coverage is declared in event.toml (``coverage_start``, ``coverage_end``, and
 ``coverage_bbox = [west, south, east, north]`` or ``coverage_file``, a GeoJSON polygon) or, when
-not declared, taken from the data's own extent (first to last stroke; the strokes' bounding box)
-and said so (``coverage_source`` ``data_extent``). The analysis window narrows the time further:
+not declared, taken from the data's own extent (first to last stroke, widened to whole minutes;
+the strokes' bounding box widened by :data:`DATA_EXTENT_MARGIN_KM`) and said so (``coverage_source`` ``data_extent``). The analysis window narrows the time further:
 a time outside the window was not analysed.
 
 Every answer about a place and a period states its coverage:
@@ -34,6 +34,9 @@ from .timeutil import iso_utc, parse_user_time
 
 #: A site farther than this outside the covered area, or a radius above it, earns a warning, km.
 SUSPECT_KM = 50.0
+
+#: Margin about the strokes' bounding box when the area is taken from the data, km (a setting of ours).
+DATA_EXTENT_MARGIN_KM = 10.0
 
 STATES = ("inside", "partial", "outside")
 
@@ -187,8 +190,17 @@ def data_coverage(strokes: pd.DataFrame, config=None) -> Coverage:
         lat = strokes["latitude"].to_numpy(float)
         w, e_ = _lon_extent(strokes["longitude"].to_numpy(float))
         s, n = float(lat.min()), float(lat.max())
+        # Widened by DATA_EXTENT_MARGIN_KM: strokes are sparse at a storm's edge, and a network
+        # that located them also watched the ground just beyond (a setting of ours).
+        dlat = DATA_EXTENT_MARGIN_KM / 111.0
+        dlon = DATA_EXTENT_MARGIN_KM / (111.0 * max(math.cos(math.radians(min(max(abs(s), abs(n)) + dlat, 89.0))), 1e-3))
+        s, n = max(s - dlat, -90.0), min(n + dlat, 90.0)
+        if (e_ - w) % 360.0 + 2 * dlon < 360.0:
+            w, e_ = ((w - dlon + 180.0) % 360.0) - 180.0, ((e_ + dlon + 180.0) % 360.0) - 180.0
+        else:
+            w, e_ = -180.0, 180.0
         area = _bbox_polygon(w, s, e_, n)
-        text = f"the strokes' bounding box {_bbox_text(w, s, e_, n)}"
+        text = f"the strokes' bounding box widened by {DATA_EXTENT_MARGIN_KM:g} km, {_bbox_text(w, s, e_, n)}"
         a_src = "data_extent"
     return Coverage(start=start, end=end, area=area, time_source=t_src, area_source=a_src, area_text=text)
 
@@ -326,7 +338,7 @@ def _suspect(coverage, lat, lon, radius_km, outside_km) -> str:
                    f"({radius_km:g} m = {radius_km / 1000.0:g} km)?")
     if outside_km > SUSPECT_KM:
         plane, area_xy, _edge = coverage.plane()
-        tries = (("longitude with its sign flipped", lat, -lon), ("latitude with its sign flipped", -lat, lon),
+        tries = (("longitude's sign flipped", lat, -lon), ("latitude's sign flipped", -lat, lon),
                  ("latitude and longitude swapped", lon, lat), ("both signs flipped", -lat, -lon))
         hint = ""
         for what, la, lo in tries:

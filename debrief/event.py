@@ -120,7 +120,7 @@ def load_optional_inputs(event: Event, *, sites_path=None) -> Event:
 
 
 def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False, config: EventConfig | None = None,
-               optional: bool = True, sites_path=None) -> Event:
+               optional: bool = True, sites_path=None, strokes_path=None) -> Event:
     """Load an event folder: read strokes, group flashes, flag continuing-current suspects.
 
     Parameters
@@ -137,14 +137,16 @@ def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False
         Also read the folder's sites, crew log, lines and outages when present.
     sites_path : path, optional
         A sites file to use instead of the folder's own.
+    strokes_path : path, optional
+        A stroke file to use instead of the folder's own (the CLI's STROKES argument).
     """
     from .continuing_current import flag_continuing_current
     from .flashes import group_flashes
     from .io.strokes import read_strokes
 
     cfg = config if config is not None else with_overrides(load_event_config(event_dir), overrides or {})
-    path = cfg.path("strokes")
-    if not path.exists():
+    path = Path(strokes_path) if strokes_path is not None else cfg.path("strokes")
+    if not path.is_file():
         raise InputError(f"event {cfg.name!r}: stroke file not found: {path}")
     strokes, ledger = read_strokes(path, config=cfg, strict=strict)
     if len(strokes) == 0:

@@ -848,7 +848,7 @@ def matches_table(result: OutageMatch) -> pd.DataFrame:
             "longitude", "flash_id", "stroke_order", "fault_distance_m", "mechanism_at_position", "location_error",
             "p_direct_low_current", "p_induced_fo_low_current", "p_direct_high_current", "p_induced_fo_high_current"]
     vv = v[["outage_id", "line_id", "time", "verdict", "verdict_low_current", "verdict_high_current", "current_sensitive",
-            "reasons"]]
+            "coverage", "n_contacts", "p_any", "reasons"]]
     cc = c.drop(columns=["line_id", "outage_pos"], errors="ignore")
     merged = vv.merge(cc, on="outage_id", how="left", sort=False)
     merged = merged.rename(columns={"time": "outage_time"})
@@ -864,7 +864,8 @@ def matches_table(result: OutageMatch) -> pd.DataFrame:
             merged[c] = merged[c].astype(float).round(6)
     merged["induced_kv"] = merged["induced_kv"].astype(float).round(3)
     cols = ["outage_id", "line_id", "outage_time"] + [k for k in keep if k != "outage_id"] + \
-           ["verdict_low_current", "verdict_high_current", "current_sensitive", "reasons"]
+           [k for k in merged.columns if k.startswith("contact_")] + \
+           ["verdict_low_current", "verdict_high_current", "current_sensitive", "coverage", "n_contacts", "p_any", "reasons"]
     return merged[cols]
 
 
@@ -883,7 +884,9 @@ def verdict_records(result: OutageMatch) -> list[dict]:
                     "time": iso_utc(r["time"]) if pd.notna(r["time"]) else None, "verdict": r["verdict"],
                     "reasons": r["reasons"], "current_sensitive": bool(r["current_sensitive"]),
                     "verdict_low_current": r["verdict_low_current"], "verdict_high_current": r["verdict_high_current"],
-                    "n_candidates": int(r["n_candidates"]), "best_candidate": best})
+                    "n_candidates": int(r["n_candidates"]), "n_contacts": int(r["n_contacts"]),
+                    "p_any": _num(r["p_any"]), "coverage": r["coverage"], "coverage_note": r["coverage_note"],
+                    "best_candidate": best})
     return out
 
 

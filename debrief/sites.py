@@ -912,6 +912,21 @@ def _run(index, cindex, sites, config, include_likely_ic, detection_efficiency, 
         extra = np.zeros(n)
         for i, (_p, ext) in parcels.items():
             extra[i] = ext
+    lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
+    cov = None
+    disp = (t0, t1)
+    if coverage is not None:
+        from .coverage import check_places
+
+        asked = (np.where(t0 == lo, coverage.t0.value, t0), np.where(t1 == hi, coverage.t1.value, t1))
+        cov = check_places(coverage, lat, lon, radius, *asked)
+        # The search keeps to what can be answered: the period met with the window and coverage.
+        orig = asked
+        t0, t1 = np.maximum(t0, coverage.t0.value), np.minimum(t1, coverage.t1.value)
+        out_ = cov["coverage"].to_numpy() == "outside"
+        t0, t1 = np.where(out_, orig[0], t0), np.where(out_, orig[1], t1)
+        t1 = np.where(out_, t0 - 1, t1)  # nothing is searched outside (the period is stated as asked)
+        disp = (np.where(out_, orig[0], t0), np.where(out_, orig[1], t1))
     cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels or None)
     ccand = _candidates(cindex, lat, lon, radius, t0, t1, extra, parcels or None)
     ccand["n_strokes"] = cindex.strokes["n_strokes"].to_numpy()[ccand["stroke_row"].to_numpy()]
@@ -919,20 +934,11 @@ def _run(index, cindex, sites, config, include_likely_ic, detection_efficiency, 
                              parcels or None)
     summ["n_default"] = np.bincount(cand["site_index"].to_numpy(), weights=cand["ellipse_from_default"].to_numpy(dtype=float),
                                     minlength=n)
-    if coverage is not None:
-        from .coverage import check_places
-
-        lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
-        cov = check_places(coverage, lat, lon, radius, np.where(t0 == lo, coverage.t0.value, t0),
-                           np.where(t1 == hi, coverage.t1.value, t1))
-        for c in ("coverage", "coverage_source", "coverage_note", "coverage_warning"):
-            summ[c] = cov[c].to_numpy()
-    else:
-        summ["coverage"], summ["coverage_source"], summ["coverage_note"], summ["coverage_warning"] = (
-            "inside", "not_checked", "", "")
+    for c in ("coverage", "coverage_source", "coverage_note", "coverage_warning"):
+        summ[c] = cov[c].to_numpy() if cov is not None else {"coverage": "inside", "coverage_source": "not_checked"}.get(c, "")
     tz = config.time_zone if config is not None else None
     return _Run(index=index, cand=cand, ccand=ccand, summ=summ, resid=resid, sites=sites, lat=lat, lon=lon,
-                radius=radius, t0=t0, t1=t1, tz=tz, include_likely_ic=include_likely_ic, shapes=shapes,
+                radius=radius, t0=disp[0], t1=disp[1], tz=tz, include_likely_ic=include_likely_ic, shapes=shapes,
                 confidence=index.confidence)
 
 

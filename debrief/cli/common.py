@@ -82,3 +82,24 @@ def window_from_args(args, cfg: EventConfig):
     if start is not None and end is not None and end <= start:
         raise InputError(f"end ({end_text}) is not after start ({start_text})")
     return start, end
+
+
+def analysis_from_args(args, cfg: EventConfig, *, window=None, include_likely_ic=False, detection_efficiency=None,
+                       de_source=None):
+    """Read the STROKES file with the event's settings and return the one analysis of its window.
+
+    The window is ``--start/--end`` (or event.toml's ``start``/``end``) unless `window` is given
+    (``(None, None)`` for the event's own window). Rejected rows are counted on stderr.
+    """
+    from ..analysis import analyse
+    from ..event import load_event
+
+    src = Path(args.strokes)
+    if not src.is_file():
+        raise InputError(f"stroke file not found: {src}")
+    event = load_event(None, config=cfg, strokes_path=src, strict=getattr(args, "strict", False), optional=False)
+    if event.ledger.rows_rejected or event.ledger.duplicates_dropped:
+        print(f"debrief: {event.ledger.one_line()}", file=sys.stderr)
+    start, end = window if window is not None else window_from_args(args, cfg)
+    return analyse(event, start, end, include_likely_ic=include_likely_ic,
+                   detection_efficiency=detection_efficiency, de_source=de_source)

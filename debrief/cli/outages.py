@@ -14,8 +14,8 @@ from pathlib import Path
 from ..config import with_overrides
 from ..errors import InputError
 from ..io.atomic import write_csv_atomic, write_text_atomic
-from ..timeutil import format_times
-from .common import add_stroke_options, config_from_args, load_strokes, window_from_args
+from ..timeutil import format_times, iso_utc
+from .common import add_stroke_options, analysis_from_args, config_from_args
 
 
 def register(subparsers) -> None:
@@ -36,6 +36,8 @@ def register(subparsers) -> None:
     p.add_argument("--geojson", metavar="FILE", help="also write corridors and candidate strokes as GeoJSON")
     p.add_argument("--clock-tolerance-s", type=float, metavar="S", help="clock tolerance (default [lines] clock_tolerance_s, 10)")
     p.add_argument("--search-km", type=float, metavar="KM", help="search distance about a line (default [lines] search_km, 2)")
+    p.add_argument("--start", metavar="ISO", help="analysis window start (default: event.toml start, else the data)")
+    p.add_argument("--end", metavar="ISO", help="analysis window end (default: event.toml end, else the data)")
     p.set_defaults(func=run)
 
 
@@ -48,9 +50,8 @@ def _input_path(given, cfg, key, option):
 
 
 def run(args) -> int:
-    from ..flashes import group_flashes
     from ..io.lines import read_lines, read_outages
-    from ..outages import line_exposure, matches_table, match_outages, to_geojson, verdict_records
+    from ..outages import matches_table, to_geojson, verdict_records
 
     cfg = config_from_args(args)
     for key, opt in (("clock_tolerance_s", "--clock-tolerance-s"), ("search_km", "--search-km")):
@@ -70,10 +71,8 @@ def run(args) -> int:
     rejected = [p for p in problems if p.severity == "rejected"]
     if args.strict and rejected:
         raise InputError(f"--strict: {rejected[0].text()}" + (f" (and {len(rejected) - 1} more)" if len(rejected) > 1 else ""))
-    strokes, _ledger = load_strokes(args.strokes, cfg, strict=args.strict)
-    if len(strokes):
-        strokes, _flashes = group_flashes(strokes, cfg)
-    result = match_outages(strokes, outages, lines, cfg)
+    an = analysis_from_args(args, cfg)
+    result = an.outages(outages, lines)
     write_csv_atomic(out, matches_table(result))
     if args.geojson:
         write_text_atomic(args.geojson, json.dumps(to_geojson(result, lines, cfg)) + "\n")
@@ -83,21 +82,18 @@ def run(args) -> int:
         print(json.dumps(verdict_records(result), indent=1, ensure_ascii=False))
         return 0
     tz = cfg.time_zone
-    print(f"{len(result.verdicts)} outage(s), {len(lines)} line(s), {len(strokes)} stroke(s); written {out}")
+    print(f"{len(result.verdicts)} outage(s), {len(lines)} line(s), {len(an.event.strokes)} stroke(s); written {out}")
+    print(f"Window: {iso_utc(an.start)} to {iso_utc(an.end)} (outages by trip time); {an.coverage.describe()}")
     for _, v in result.verdicts.iterrows():
         when = format_times(v["time"], tz) if v["time"] == v["time"] else "time unknown"
         flag = "  [changes with ±30% peak current]" if v["current_sensitive"] else ""
-        print(f"{v['outage_id']}  {v['line_id']}  {when}\n  {v['verdict']}{flag}\n  {v['reasons']}")
+        cov = f"  [coverage {v['coverage']}]" if v["coverage"] not in ("inside", "not_checked") else ""
+        print(f"{v['outage_id']}  {v['line_id']}  {when}\n  {v['verdict']}{flag}{cov}\n  {v['reasons']}")
     if problems:
         print("Input problems:")
         for p in problems:
             print(f"  {p.severity}: {p.text()}")
-    start, end = window_from_args(args, cfg)
-    sel = strokes
-    if len(strokes) and (start is not None or end is not None):
-        t = strokes["time"]
-        sel = strokes[((t >= start) if start is not None else True) & ((t <= end) if end is not None else True)]
-    exposure = line_exposure(sel, lines, cfg)
+    exposure = an.exposure(lines)
     print("Lines: ground strokes whose reported position fell in the flashover corridor (direct-strike zone or "
           "induced-flashover band at the stroke's current) during the event")
     for _, e in exposure.iterrows():

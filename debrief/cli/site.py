@@ -16,8 +16,8 @@ import pandas as pd
 from ..config import with_overrides
 from ..errors import InputError
 from ..io.atomic import write_csv_atomic, write_text_atomic
-from ..timeutil import format_times, iso_utc, iso_utc_many
-from .common import add_stroke_options, config_from_args, load_strokes, window_from_args
+from ..timeutil import format_times, iso_utc, iso_utc_many, parse_user_time
+from .common import add_stroke_options, analysis_from_args, config_from_args, window_from_args
 
 CANDIDATE_COLUMNS = (
     "time", "latitude", "longitude", "peak_current_ka", "type", "flash_id", "ground_contact", "likely_ic",
@@ -52,8 +52,8 @@ def _register_site(subparsers):
     p.add_argument("--lat", type=float, metavar="LAT", help="site latitude, degrees (default: the parcel's centre)")
     p.add_argument("--lon", type=float, metavar="LON", help="site longitude, degrees (default: the parcel's centre)")
     p.add_argument("--radius-km", type=float, required=True, metavar="R", help="circle radius, km")
-    p.add_argument("--start", metavar="ISO", help="window start (default: event.toml start, else the data)")
-    p.add_argument("--end", metavar="ISO", help="window end (default: event.toml end, else the data)")
+    p.add_argument("--start", metavar="ISO", help="claim period start (default: the analysis window's: event.toml start, else the data)")
+    p.add_argument("--end", metavar="ISO", help="claim period end (default: the analysis window's: event.toml end, else the data)")
     p.add_argument("--parcel", metavar="PARCEL.geojson", help="parcel outline (GeoJSON Polygon, RFC 7946)")
     p.add_argument("--name", default="the site", metavar="NAME", help="site name for the summary")
     p.add_argument("--out", metavar="CANDIDATES.csv", help="write the candidate strokes as CSV")
@@ -89,8 +89,8 @@ def _register_alerts(subparsers):
     p.add_argument("--crew-log", metavar="FILE", help="crew log CSV: site, stopped, resumed")
     p.add_argument("--out", metavar="PERIODS.csv", help="write the periods as CSV")
     p.add_argument("--comparison-out", metavar="FILE", help="write the crew-log comparison as CSV")
-    p.add_argument("--start", metavar="ISO", help="data coverage start (default: event.toml start)")
-    p.add_argument("--end", metavar="ISO", help="data coverage end (default: event.toml end, else the last stroke)")
+    p.add_argument("--start", metavar="ISO", help="analysis window start (default: event.toml start, else the data)")
+    p.add_argument("--end", metavar="ISO", help="analysis window end (default: event.toml end, else the data)")
     p.set_defaults(func=run_alerts)
 
 
@@ -99,19 +99,6 @@ def _register_alerts(subparsers):
 def _config(args):
     cfg = config_from_args(args)
     return with_overrides(cfg, {"default_uncertainty_km": getattr(args, "default_uncertainty_km", None)})
-
-
-def _grouped(args, cfg):
-    from ..flashes import group_flashes
-
-    src = Path(args.strokes)
-    if not src.is_file():
-        raise InputError(f"stroke file not found: {src}")
-    strokes, _ledger = load_strokes(src, cfg, strict=args.strict)
-    if len(strokes) == 0:
-        raise InputError(f"no usable strokes in {src}")
-    grouped, _flashes = group_flashes(strokes, cfg)
-    return grouped
 
 
 def _check_out(path, *inputs):
@@ -147,6 +134,24 @@ def _print_cautions(cautions):
         print(f"  - {c}")
 
 
+def _event_window(cfg):
+    """The event's analysis window from event.toml (None where unset: the data's extent)."""
+    tz = cfg.time_zone
+    start = parse_user_time(cfg.get("start"), tz, what="event.toml start") if cfg.get("start") else None
+    end = parse_user_time(cfg.get("end"), tz, what="event.toml end") if cfg.get("end") else None
+    return start, end
+
+
+def _period_from_args(args, cfg):
+    """A claim period from ``--start/--end`` only (None where not given: the window's bound)."""
+    tz = cfg.time_zone
+    start = parse_user_time(args.start, tz, what="--start") if args.start else None
+    end = parse_user_time(args.end, tz, what="--end") if args.end else None
+    if start is not None and end is not None and end <= start:
+        raise InputError(f"--end ({args.end}) is not after --start ({args.start})")
+    return start, end
+
+
 def _sites_path(args, cfg):
     if args.sites:
         return Path(args.sites)
@@ -159,13 +164,13 @@ def _sites_path(args, cfg):
 
 def run_site(args) -> int:
     from ..io.sites import read_parcel
-    from ..sites import CAUTIONS, candidates_geojson, check_site
+    from ..sites import CAUTIONS, candidates_geojson
 
     cfg = _config(args)
     from ..uncertainty import sigma_scale
 
     sigma_scale(cfg.get("ellipse_confidence"))  # a bad confidence fails before the work
-    start, end = window_from_args(args, cfg)
+    start, end = _period_from_args(args, cfg)
     de, src = _de_args(args)
     parcel = read_parcel(args.parcel) if args.parcel else None
     lat, lon = args.lat, args.lon
@@ -180,9 +185,10 @@ def run_site(args) -> int:
     _validate_site(lat, lon, args.radius_km)
     for o in (args.out, args.geojson):
         _check_out(o, args.strokes, args.parcel)
-    grouped = _grouped(args, cfg)
-    res = check_site(grouped, lat, lon, args.radius_km, start=start, end=end, config=cfg, parcel=parcel,
-                     include_likely_ic=args.include_likely_ic, detection_efficiency=de, de_source=src, name=args.name)
+    # --start/--end are the claim period; the analysis window is the event's (event.toml or the data).
+    an = analysis_from_args(args, cfg, window=_event_window(cfg), include_likely_ic=args.include_likely_ic,
+                            detection_efficiency=de, de_source=src)
+    res = an.check_site(lat, lon, args.radius_km, start=start, end=end, parcel=parcel, name=args.name)
     if args.out:
         cols = [c for c in CANDIDATE_COLUMNS if c in res.candidates.columns]
         write_csv_atomic(args.out, _iso_frame(res.candidates[cols]))
@@ -195,12 +201,19 @@ def run_site(args) -> int:
     tz = cfg.time_zone
     print(f"Site check: {res.name} ({s['latitude']:.5f}, {s['longitude']:.5f}), radius {s['radius_km']:g} km")
     print(f"Window: {format_times(s['start'], tz)} to {format_times(s['end'], tz)}")
+    cov = {"inside": "inside", "partial": "PARTIAL", "outside": "OUTSIDE (no conclusion)"}.get(s["coverage"], s["coverage"])
+    print(f"Coverage: {cov} ({s['coverage_source']})" + (f": {s['coverage_note']}" if s["coverage_note"] else ""))
+    if s["coverage_warning"]:
+        print(f"Warning: {s['coverage_warning']}")
     print(f"Ellipse confidence {s['ellipse_confidence']:g}; {s['n_ellipse_from_default']} candidate(s) used default_uncertainty_km")
     print(f"Candidates: {s['n_candidates']} (ground {s['n_ground_candidates']}), ground strokes within the radius: {s['n_ground_within']}")
     near = "none" if not np.isfinite(s["nearest_km"]) else f"{s['nearest_km']:.3f} km"
-    print(f"Nearest ground stroke: {near}; largest p_within {s['max_p_within']:.4f}; "
-          f"p(at least one ground contact within) {s['p_any_within']:.4f} over {s['n_contacts']} contact(s), taken as independent")
-    if "p_any_within_parcel" in s:
+    if s["coverage"] != "outside":
+        print(f"Nearest ground stroke: {near}; largest p_within of a ground contact {s['max_p_within']:.4f} "
+              f"(of a single stroke {s['max_p_within_stroke']:.4f}); p(at least one ground contact within) "
+              f"{s['p_any_within']:.4f} over {s['n_contacts']} contact(s), each contact's strokes combined into one "
+              "fix, contacts taken as independent")
+    if "p_any_within_parcel" in s and s["coverage"] != "outside":
         print(f"Parcel: {s['parcel_area_km2']:.4g} km2, largest p {s['max_p_within_parcel']:.4f}, "
               f"p(at least one) {s['p_any_within_parcel']:.4f}")
     r = res.residual
@@ -208,7 +221,10 @@ def run_site(args) -> int:
         print(f"Unrecorded-flash chance: DE {r['detection_efficiency']:g} ({r['de_source']}); "
               f"{r['n_ground_flashes_in_ring']} recorded ground flashes in the ring {r['ring_inner_km']:g}-{r['ring_outer_km']:g} km "
               f"({r['ring_area_km2']:.1f} km2) -> {r['density_per_km2']:.4g} per km2; circle {r['area_km2']:.4g} km2; "
-              f"expected unrecorded {r['expected_unrecorded']:.4g}; chance 1 - exp(-lambda) = {r['p_unrecorded']:.4f}")
+              f"expected unrecorded {r['expected_unrecorded']:.4g}; chance 1 - exp(-lambda) = {r['p_unrecorded']:.4f} "
+              f"({100 * r['upper_confidence']:.0f}% upper bound {r['p_unrecorded_upper']:.4f})")
+    elif s["coverage"] != "inside":
+        print("Unrecorded-flash chance: not stated (the question is not wholly inside the data's coverage)")
     else:
         print("Unrecorded-flash chance: not stated (no detection efficiency given: --detection-efficiency with --de-source, "
               "or flash_detection_efficiency in event.toml)")
@@ -230,7 +246,7 @@ def run_site(args) -> int:
 
 def run_sites(args) -> int:
     from ..io.sites import read_sites
-    from ..sites import CAUTIONS, check_sites
+    from ..sites import CAUTIONS
 
     cfg = _config(args)
     de, src = _de_args(args)
@@ -244,18 +260,22 @@ def run_sites(args) -> int:
     skipped = len(sites) - len(claim)
     if len(claim) == 0:
         raise InputError(f"no site in {path} has a radius_km to check")
-    grouped = _grouped(args, cfg)
-    summary, cand = check_sites(grouped, claim, cfg, include_likely_ic=args.include_likely_ic,
-                                detection_efficiency=de, de_source=src, return_candidates=True)
+    an = analysis_from_args(args, cfg, include_likely_ic=args.include_likely_ic, detection_efficiency=de, de_source=src)
+    summary, cand = an.check_sites(claim, return_candidates=True)
     write_csv_atomic(args.out, _iso_frame(summary))
     if args.candidates_out:
         cols = ["site"] + [c for c in CANDIDATE_COLUMNS if c in cand.columns]
         write_csv_atomic(args.candidates_out, _iso_frame(cand[cols]))
     print(f"{len(summary)} site(s) checked -> {args.out}" + (f"; {skipped} alert-only site(s) without radius_km left out" if skipped else ""))
-    print(f"  {'site':<32} {'km':>5} {'within':>6} {'nearest':>8} {'max p':>7} {'p any':>7}")
+    print(f"Window: {iso_utc(an.start)} to {iso_utc(an.end)}; {an.coverage.describe()}")
+    print(f"  {'site':<32} {'km':>5} {'coverage':>8} {'within':>6} {'nearest':>8} {'max p':>7} {'p any':>7}")
     for row in summary.itertuples(index=False):
         near = f"{row.nearest_km:8.3f}" if np.isfinite(row.nearest_km) else f"{'-':>8}"
-        print(f"  {str(row.name)[:32]:<32} {row.radius_km:>5g} {row.n_ground_within:>6d} {near} {row.max_p_within:>7.4f} {row.p_any_within:>7.4f}")
+        mp = f"{row.max_p_within:>7.4f}" if np.isfinite(row.max_p_within) else f"{'-':>7}"
+        pa = f"{row.p_any_within:>7.4f}" if np.isfinite(row.p_any_within) else f"{'-':>7}"
+        print(f"  {str(row.name)[:32]:<32} {row.radius_km:>5g} {row.coverage:>8} {row.n_ground_within:>6d} {near} {mp} {pa}")
+        if row.coverage_warning:
+            print(f"    warning: {row.coverage_warning}")
     if problems:
         print(f"{len(problems)} bad row(s) in {path} skipped (see stderr)")
     _print_cautions(CAUTIONS)
@@ -265,7 +285,7 @@ def run_sites(args) -> int:
 # --- alerts -----------------------------------------------------------------------------------
 
 def run_alerts(args) -> int:
-    from ..alerts import RECORD_NOTE, alert_periods, alert_sites, compare_crew_log, site_totals
+    from ..alerts import RECORD_NOTE, alert_sites
     from ..io.sites import read_crew_log, read_sites
     from ..sites import CAUTIONS
 
@@ -288,22 +308,19 @@ def run_alerts(args) -> int:
     crew = alert_sites(sites)
     if len(crew) == 0:
         raise InputError(f"no usable site in {path}")
-    grouped = _grouped(args, cfg)
-    if start is not None:
-        grouped = grouped[grouped["time"] >= start]
-    if end is not None:
-        grouped = grouped[grouped["time"] <= end]
-    periods = alert_periods(grouped, crew, cfg, data_end=end)
+    an = analysis_from_args(args, cfg, window=(start, end))
+    periods, totals, cmp_ = an.alerts(crew, log)
     tz = cfg.time_zone
     a = cfg["alerts"]
     print(f"Alert periods at {len(crew)} site(s): stop radius {a['stop_km']:g} km unless the site sets stop_km"
           + (f", warning radius {a['warn_km']:g} km" if a["warn_km"] else "")
           + f", all-clear {a['all_clear_min']:g} min after the last {'stroke or pulse' if a['include_ic'] else 'ground stroke'}")
     for row in periods.itertuples(index=False):
-        flag = "  (still open when the data end)" if row.open_at_end else ""
+        flag = ("  (still open when the data end)" if row.open_at_end else "") + \
+               ("  (may have begun before the data start)" if row.open_at_start else "") + \
+               (f"  [coverage {row.coverage}: {row.coverage_note}]" if row.coverage not in ("inside", "not_checked") else "")
         print(f"  {row.site} [{row.level}] {format_times(row.start, tz)} -> all clear {format_times(row.all_clear, tz)}: "
               f"{row.duration_min:.0f} min, {row.n_strokes} strokes, nearest {row.nearest_km:.2f} km{flag}")
-    totals = site_totals(periods, crew["name"])
     print("Total time in stop periods:")
     for row in totals[totals["level"] == "stop"].itertuples(index=False):
         lb = " (at least: a period was still open)" if row.open_at_end else ""
@@ -311,7 +328,6 @@ def run_alerts(args) -> int:
     if args.out:
         write_csv_atomic(args.out, _iso_frame(periods))
     if log is not None:
-        cmp_ = compare_crew_log(periods, log, data_end=end, sites=list(crew["name"]))
         print("Crew log compared with the stop periods:" if len(cmp_) else "Crew log: matches the stop periods (to the minute).")
         for row in cmp_.itertuples(index=False):
             span = f"{format_times(row.start, tz)} to {format_times(row.end, tz)}" if not pd.isna(row.start) else ""
