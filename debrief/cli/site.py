@@ -237,7 +237,7 @@ def run_sites(args) -> int:
     path = _sites_path(args, cfg)
     _check_out(args.out, args.strokes, path)
     _check_out(args.candidates_out, args.strokes, path)
-    sites, problems = read_sites(path, time_zone=cfg.time_zone)
+    sites, problems = read_sites(path, time_zone=cfg.time_zone, time_format=cfg.get("typed_time_format"))
     for pr in problems:
         print(f"debrief sites: {pr} (row skipped)", file=sys.stderr)
     claim = sites[sites["radius_km"].notna()]
@@ -277,12 +277,12 @@ def run_alerts(args) -> int:
     path = _sites_path(args, cfg)
     _check_out(args.out, args.strokes, path)
     _check_out(args.comparison_out, args.strokes, path)
-    sites, problems = read_sites(path, time_zone=cfg.time_zone)
+    sites, problems = read_sites(path, time_zone=cfg.time_zone, time_format=cfg.get("typed_time_format"))
     for pr in problems:
         print(f"debrief alerts: {pr} (row skipped)", file=sys.stderr)
     log = None
     if args.crew_log:
-        log, log_problems = read_crew_log(args.crew_log, time_zone=cfg.time_zone)
+        log, log_problems = read_crew_log(args.crew_log, time_zone=cfg.time_zone, time_format=cfg.get("typed_time_format"))
         for pr in log_problems:
             print(f"debrief alerts: {pr} (row skipped)", file=sys.stderr)
     crew = alert_sites(sites)
