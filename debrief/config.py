@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from .errors import InputError
-from .timeutil import zone
+from .timeutil import check_time_format, zone
 
 
 @dataclass(frozen=True)
@@ -45,15 +45,20 @@ _SCHEMA: dict[str, dict[str, Key]] = {
     "": {
         "name": Key(None, _OPT_STR, "event title (default: the folder name)"),
         "time_zone": Key(None, _OPT_STR, "IANA zone for display and for typed times without an offset"),
-        "start": Key(None, _OPT_STR, "analysis window start, ISO 8601 (default: first stroke)"),
-        "end": Key(None, _OPT_STR, "analysis window end, ISO 8601 (default: last stroke)"),
+        "start": Key(None, _OPT_STR, "analysis window start, ISO 8601 or typed_time_format (default: first stroke)"),
+        "end": Key(None, _OPT_STR, "analysis window end, ISO 8601 or typed_time_format (default: last stroke)"),
         "strokes": Key("strokes.csv", _STR, "stroke file (.csv or .parquet)"),
         "sites": Key("sites.csv", _STR, "sites file, optional"),
         "lines": Key("lines.geojson", _STR, "power lines, GeoJSON, optional"),
         "outages": Key("outages.csv", _STR, "outage log, optional"),
         "crew_log": Key("crew_log.csv", _STR, "crew log (site, stopped, resumed), optional"),
         "columns": Key({}, (dict,), "explicit column map, canonical name = header in the file"),
-        "current_unit": Key("kA", _STR, "unit of the peak current column", choices=("kA", "A")),
+        "current_unit": Key(
+            "kA", _STR,
+            "unit of the peak current column; must agree with a unit in its header (peak_current_ka, "
+            "current_a); when neither states one, a header such as current or ip is read as kA only if "
+            "every value is within -1000..1000, else the read stops and asks", choices=("kA", "A"),
+        ),
         "type_codes": Key({}, (dict,), "map of the file's type codes to CG/IC, e.g. {G = 'CG', C = 'IC'}"),
         "polarity_column": Key(None, _OPT_STR, "column holding polarity when the current is unsigned"),
         "ellipse_axes": Key("semi", _STR, "whether ellipse axes are semi-axes or full axes", choices=("semi", "full")),
@@ -63,6 +68,12 @@ _SCHEMA: dict[str, dict[str, Key]] = {
             "counter-clockwise from east", choices=("north_cw", "east_ccw"),
         ),
         "time_format": Key("auto", _STR, "stroke time format", choices=("auto", "iso", "epoch_s")),
+        "typed_time_format": Key(
+            None, _OPT_STR,
+            "strptime pattern of typed times that are not ISO 8601 (sites start/end, crew log, outage "
+            "log, --start/--end), e.g. '%d/%m/%Y %H:%M'; ISO 8601 is always read; none: only ISO 8601 "
+            "(01/11/2026 is refused, never guessed)",
+        ),
         "ellipse_confidence": Key(0.5, _NUM, "confidence level of the reported ellipses", 0.0, 1.0, True),
         "default_uncertainty_km": Key(None, _OPT_NUM, "circular semi-axis at ellipse_confidence for strokes without an ellipse", 0.0, None, True),
         "flash_detection_efficiency": Key(None, _OPT_NUM, "the network's flash detection efficiency (0-1]", 0.0, 1.0, True),
@@ -224,6 +235,8 @@ def _check(section: str, key: str, value, where: str):
             zone(value)
         except InputError as e:
             raise InputError(f"{where}: {e}") from None
+    if key == "typed_time_format" and value is not None:
+        check_time_format(value, what=f"{where}:")
     if key in ("columns", "type_codes"):
         for k, v in value.items():
             if not isinstance(v, str):

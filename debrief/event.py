@@ -98,12 +98,12 @@ def load_optional_inputs(event: Event, *, sites_path=None) -> Event:
     if sites_path and not path.is_file():
         raise InputError(f"sites file not found: {path}")
     if path.is_file():
-        event.sites, probs = read_sites(path, time_zone=tz)
+        event.sites, probs = read_sites(path, time_zone=tz, time_format=cfg.get("typed_time_format"))
         event.problems.extend(("sites", p) for p in probs)
         event.inputs.append(_input("sites", path, len(event.sites) + len(probs)))
     path = cfg.path("crew_log")
     if path.is_file():
-        event.crew_log, probs = read_crew_log(path, time_zone=tz)
+        event.crew_log, probs = read_crew_log(path, time_zone=tz, time_format=cfg.get("typed_time_format"))
         event.problems.extend(("crew log", p) for p in probs)
         event.inputs.append(_input("crew log", path, len(event.crew_log) + len(probs)))
     path = cfg.path("lines")
@@ -113,7 +113,7 @@ def load_optional_inputs(event: Event, *, sites_path=None) -> Event:
         event.inputs.append(_input("lines", path, len(event.lines) + len(probs)))
     path = cfg.path("outages")
     if path.is_file() and event.lines is not None:
-        event.outages, probs = read_outages(path, tz=tz, line_ids=event.lines["line_id"])
+        event.outages, probs = read_outages(path, tz=tz, line_ids=event.lines["line_id"], time_format=cfg.get("typed_time_format"))
         event.problems.extend(("outages", p) for p in probs)
         event.inputs.append(_input("outages", path, len(event.outages)))
     return event
@@ -154,8 +154,8 @@ def load_event(event_dir, *, overrides: dict | None = None, strict: bool = False
     grouped, flashes = group_flashes(strokes, cfg)
     flashes = flag_continuing_current(grouped, flashes, cfg)
     tz = cfg.time_zone
-    start = parse_user_time(cfg.get("start"), tz, what="event.toml start") if cfg.get("start") else grouped["time"].min()
-    end = parse_user_time(cfg.get("end"), tz, what="event.toml end") if cfg.get("end") else grouped["time"].max()
+    start = parse_user_time(cfg.get("start"), tz, what="event.toml start", time_format=cfg.get("typed_time_format")) if cfg.get("start") else grouped["time"].min()
+    end = parse_user_time(cfg.get("end"), tz, what="event.toml end", time_format=cfg.get("typed_time_format")) if cfg.get("end") else grouped["time"].max()
     if end < start:
         raise InputError(f"event {cfg.name!r}: end ({end}) is before start ({start})")
     event = Event(config=cfg, strokes=grouped, flashes=flashes, ledger=ledger, start=start, end=end,

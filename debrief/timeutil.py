@@ -3,16 +3,114 @@
 Stroke times from a network without an offset are UTC (handled by the stroke reader); times a
 person types (CLI windows, outage logs, site windows) without an offset are read in the event's
 ``time_zone`` or ``--tz``; with neither, we stop and ask rather than guess.
+
+Typed times are ISO 8601 or follow the pattern the user states (``typed_time_format``); any
+other text (``01/11/2026``, ``01.11.2026``, ``July 14 2026``) is refused with the fix, because
+day-first and month-first writings cannot be told apart. :func:`read_typed_time` is the one
+parser; :func:`parse_user_time` adds the zone and is what the readers and the CLI call.
 """
 
 from __future__ import annotations
 
+import re
+import warnings
+from datetime import datetime
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
 import numpy as np
 import pandas as pd
 
 from .errors import InputError
+
+#: What to do about a typed time that is not ISO 8601 (appended to every such message).
+TYPED_TIME_FIX = ("write ISO 8601 such as 2026-11-01T14:02, or set typed_time_format in event.toml / "
+                  "--typed-time-format, e.g. '%d/%m/%Y %H:%M'")
+
+# ISO 8601 calendar date, optionally a time of day (T or a space; minutes, seconds and a
+# fraction optional after HH:MM) and a UTC offset after the time: Z, +HH:MM, +HHMM or +HH.
+# Nothing else: 01/11/2026 is 1 November in one country and 11 January in another.
+_ISO_RE = re.compile(
+    r"^\d{4}-\d{2}-\d{2}"
+    r"(?:[Tt ]\d{2}:\d{2}(?::\d{2}(?:[.,]\d{1,9})?)?(?:[Zz]|[+-]\d{2}(?::?\d{2})?)?)?$"
+)
+# A date-time that shows every field of a pattern, to check a pattern reads back what it wrote.
+_PROBE = datetime(2026, 11, 3, 14, 5, 6)
+
+
+def check_time_format(fmt: str, *, what: str = "typed_time_format") -> str:
+    """Check a strptime pattern for typed times; return it unchanged.
+
+    The pattern must give the year, month and day and, when it gives the hour, read back the
+    hour it writes (``%I`` needs ``%p``).
+
+    Raises
+    ------
+    InputError
+        A pattern that cannot be used, naming `what`.
+    """
+    fmt = str(fmt)
+    try:
+        with warnings.catch_warnings():  # newer Pythons warn on a day without a year: refused below
+            warnings.simplefilter("ignore", DeprecationWarning)
+            back = datetime.strptime(_PROBE.strftime(fmt), fmt)
+    except (ValueError, TypeError):
+        back = None
+    if back is None or back.date() != _PROBE.date() or back.hour not in (0, _PROBE.hour):
+        raise InputError(
+            f"{what} {fmt!r} is not a usable strptime pattern: it must give year, month and day "
+            "(e.g. '%d/%m/%Y' or '%d/%m/%Y %H:%M'; a 12-hour %I needs %p)"
+        )
+    return fmt
+
+
+def read_typed_time(text, *, time_format: str | None = None) -> pd.Timestamp:
+    """Read one typed time as written: ISO 8601, or the pattern the user stated.
+
+    Parameters
+    ----------
+    text : str
+        ``YYYY-MM-DD`` or ``YYYY-MM-DD[T ]HH:MM[:SS[.fff...]]`` with an optional ``Z``,
+        ``+HH:MM``, ``+HHMM`` or ``+HH`` offset; or text matching `time_format`.
+    time_format : str, optional
+        ``typed_time_format``: a strptime pattern tried before ISO 8601 (so that the stated
+        pattern decides any text that both could read).
+
+    Returns
+    -------
+    Timestamp
+        Without a zone when the text has no offset (the caller applies the zone).
+
+    Raises
+    ------
+    ValueError
+        The text is neither; the message quotes it and says how to fix it.
+
+    References
+    ----------
+    .. [1] ISO 8601-1:2019, Date and time -- Representations for information interchange.
+    """
+    s = str(text).strip()
+    if time_format:
+        try:
+            return pd.Timestamp(datetime.strptime(s, time_format))
+        except ValueError:
+            pass
+    if _ISO_RE.match(s):
+        try:
+            ts = pd.Timestamp(s.replace(",", "."))
+        except (ValueError, TypeError, OverflowError):
+            ts = None
+        if ts is not None and ts is not pd.NaT:
+            return ts
+        raise ValueError(f"{s!r} is not a valid date or time")
+    if time_format:
+        example = datetime(2026, 11, 1, 14, 2).strftime(time_format)
+        raise ValueError(
+            f"{s!r} matches neither typed_time_format {time_format!r} (e.g. {example!r}) nor ISO 8601 "
+            "(e.g. 2026-11-01T14:02)"
+        )
+    raise ValueError(f"{s!r} is not an ISO 8601 time; {TYPED_TIME_FIX}")
+
 
 def zone(name: str | None) -> ZoneInfo | None:
     """The IANA zone called `name`, or None; an unknown name is an InputError."""
@@ -24,25 +122,32 @@ def zone(name: str | None) -> ZoneInfo | None:
         raise InputError(f"unknown time zone {name!r}: use an IANA name such as 'Europe/Vienna' or 'UTC'") from None
 
 
-def parse_user_time(text: str, tz: str | None, *, what: str = "time") -> pd.Timestamp:
+def parse_user_time(text: str, tz: str | None, *, what: str = "time", time_format: str | None = None) -> pd.Timestamp:
     """Parse a typed time to a UTC Timestamp (ns).
 
     Parameters
     ----------
     text : str
-        ISO 8601 date or date-time, with or without offset.
+        ISO 8601 date or date-time, with or without offset, or text in `time_format`
+        (:func:`read_typed_time`); anything else (``01/11/2026``) is refused, never guessed.
     tz : str or None
         IANA zone for a time without offset. None: such a time is an error that asks for one.
     what : str
         What the time is, for the message (e.g. ``"--start"``).
+    time_format : str, optional
+        The event's ``typed_time_format`` (a strptime pattern).
+
+    Raises
+    ------
+    InputError
+        Text that is not a time of the accepted forms, a time without offset and no zone, or a
+        local time that does not exist or is ambiguous in `tz`.
     """
     s = str(text).strip()
     try:
-        ts = pd.Timestamp(s)
-    except (ValueError, TypeError):
-        raise InputError(f"{what}: cannot read {s!r} as an ISO 8601 time (e.g. 2026-07-14T15:30:00Z)") from None
-    if ts is pd.NaT:
-        raise InputError(f"{what}: cannot read {s!r} as an ISO 8601 time")
+        ts = read_typed_time(s, time_format=time_format)
+    except ValueError as e:
+        raise InputError(f"{what}: {e}") from None
     if ts.tzinfo is None:
         z = zone(tz)
         if z is None:
@@ -54,7 +159,10 @@ def parse_user_time(text: str, tz: str | None, *, what: str = "time") -> pd.Time
             ts = ts.tz_localize(z, ambiguous="raise", nonexistent="raise")
         except Exception:
             raise InputError(f"{what}: {s!r} does not exist or is ambiguous in {tz} (a DST change); add an offset") from None
-    return ts.tz_convert("UTC").as_unit("ns")
+    try:
+        return ts.tz_convert("UTC").as_unit("ns")
+    except (ValueError, OverflowError):
+        raise InputError(f"{what}: {s!r} is outside the years 1678-2261") from None
 
 
 def iso_utc(ts) -> str:

@@ -1047,7 +1047,8 @@ def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, conf
     Raises
     ------
     InputError
-        When some strokes have no ellipse and no default is set.
+        When some strokes have no ellipse and no default is set, or a semi-axis is zero or
+        negative (the message names the stroke's ``source_row``).
     """
     if confidence is None:
         confidence = config.get("ellipse_confidence") if config is not None else 0.5
@@ -1076,6 +1077,14 @@ def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, conf
         a = np.where(missing, default_uncertainty_km, a)
         b = np.where(missing, default_uncertainty_km, b)
         br = np.where(missing, 0.0, br)
+    flat = np.flatnonzero((a <= 0.0) | (b <= 0.0))
+    if flat.size:  # the reader gives NaN for these; a table built another way is named by its row
+        k = flat[0]
+        row = f"source_row {strokes['source_row'].iloc[k]}" if "source_row" in strokes else f"row {k}"
+        raise InputError(
+            f"stroke at {row}: error-ellipse semi-axes must be positive, got {a[k]:g} and {b[k]:g} km "
+            f"({flat.size} such stroke{'s' if flat.size > 1 else ''}); set them to NaN (no ellipse) to use default_uncertainty_km"
+        )
     sxx, syy, sxy = ellipse_covariance(a, b, br, confidence)
     return sxx, syy, sxy, missing
 

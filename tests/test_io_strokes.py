@@ -225,11 +225,140 @@ def test_circle_without_bearing_keeps_its_ellipse_partial_ellipse_is_missing(tmp
     assert any("blank axis or bearing" in n and "(1 row)" in n for n in led.notes)
 
 
+AMPERES = "time,lat,lon,current\n2026-07-14T19:00:00Z,45.5,-93.2,-12500\n2026-07-14T19:00:01Z,45.5,-93.2,31000\n"
+
+
 def test_current_in_amperes_converted_to_ka(tmp_path):
-    p = write(tmp_path, HEADER + row(ip=-12500) + row(t="2026-07-14T19:00:01Z", ip=31000))
+    p = write(tmp_path, AMPERES)
     df, led = read_strokes(p, config=cfg(current_unit="A"))
     assert df["peak_current_ka"].tolist() == [-12.5, 31.0]  # 1 kA = 1000 A (SI)
     assert "peak current converted from A to kA" in led.notes
+
+
+def test_unitless_current_header_with_amperes_values_stops_and_asks(tmp_path):
+    # -12500 and 31000 under "current": 31000 kA is no lightning stroke (recorded peak currents
+    # stay within a few hundred kA, common practice), so the unit must be stated, not guessed.
+    p = write(tmp_path, AMPERES)
+    with pytest.raises(InputError) as e:
+        read_strokes(p)
+    msg = str(e.value)
+    assert str(p) in msg and "'current'" in msg and "31000" in msg
+    assert 'current_unit = "A"' in msg and "--current-unit A" in msg and "\n" not in msg
+
+
+@pytest.mark.parametrize("header", ["current", "ip", "peak_current", "Peak Current"])
+def test_unitless_current_header_with_small_values_is_ka_with_a_note(tmp_path, header):
+    p = write(tmp_path, f"time,lat,lon,{header}\n2026-07-14T19:00:00Z,45.5,-93.2,-12.5\n"
+                        "2026-07-14T19:00:01Z,45.5,-93.2,1000\n2026-07-14T19:00:02Z,45.5,-93.2,-1000\n")
+    df, led = read_strokes(p)
+    assert df["peak_current_ka"].tolist() == [-12.5, 1000.0, -1000.0]  # the limit itself is kA
+    note = [n for n in led.notes if "states no unit" in n]
+    assert len(note) == 1 and f"'{header}'" in note[0] and "read as kA" in note[0] and "current_unit" in note[0]
+    # Stated, no note: the user said so.
+    _, led = read_strokes(p, config=cfg(current_unit="kA"))
+    assert not any("states no unit" in n for n in led.notes)
+
+
+def test_unitless_limit_uses_every_chunk_and_only_accepted_rows(tmp_path):
+    rows = "".join(f"2026-07-14T19:00:{i:02d}Z,45.5,-93.2,-12.5\n" for i in range(20))
+    p = write(tmp_path, "time,lat,lon,current\n" + rows + "2026-07-14T19:00:30Z,45.5,-93.2,-12500\n")
+    with pytest.raises(InputError, match="up to 12500"):
+        read_strokes(p, chunksize=3)  # the large value is in the last chunk
+    # A rejected row (latitude 95) does not count towards the limit.
+    p = write(tmp_path, "time,lat,lon,current\n" + rows + "2026-07-14T19:00:30Z,95,-93.2,-12500\n")
+    df, led = read_strokes(p, chunksize=3)
+    assert len(df) == 20 and led.rejected["bad_latitude"]["first_lines"] == [22]
+
+
+@pytest.mark.parametrize("header, values, expected", [
+    ("peak_current_ka", "-12500", -12500.0),   # the header states kA: read as written
+    ("Peak Current (kA)", "-12.5", -12.5),
+    ("ip_ka", "-12.5", -12.5),
+    ("current_a", "-12500", -12.5),            # the header states A: converted (1 kA = 1000 A, SI)
+    ("peak_current_a", "-12500", -12.5),
+    ("Peak current (A)", "-12500", -12.5),
+    ("ip_a", "-800", -0.8),
+])
+def test_header_with_a_unit_is_read_in_that_unit(tmp_path, header, values, expected):
+    p = write(tmp_path, f"time,lat,lon,{header}\n2026-07-14T19:00:00Z,45.5,-93.2,{values}\n")
+    df, led = read_strokes(p)
+    assert df.loc[0, "peak_current_ka"] == expected
+    assert not any("states no unit" in n for n in led.notes)
+    converted = expected != float(values)
+    assert ("peak current converted from A to kA" in led.notes) == converted
+    # Stating the same unit again is fine.
+    unit = "A" if converted else "kA"
+    df2, _ = read_strokes(p, config=cfg(current_unit=unit))
+    assert df2.loc[0, "peak_current_ka"] == expected
+
+
+@pytest.mark.parametrize("header, stated, says", [("peak_current_ka", "A", "kA"), ("Peak current (A)", "kA", "A")])
+def test_stated_unit_against_the_header_unit_is_fatal(tmp_path, header, stated, says):
+    p = write(tmp_path, f"time,lat,lon,{header}\n2026-07-14T19:00:00Z,45.5,-93.2,-12.5\n")
+    with pytest.raises(InputError) as e:
+        read_strokes(p, config=cfg(current_unit=stated))
+    msg = str(e.value)
+    assert f"current_unit is '{stated}'" in msg and f"'{header}' says {says}" in msg and str(p) in msg
+
+
+def test_default_current_unit_is_not_a_statement():
+    # The schema default kA is not the user's word: only an explicit setting counts.
+    assert not cfg().is_given("", "current_unit") and cfg(current_unit="kA").is_given("", "current_unit")
+
+
+def test_parquet_unitless_current_same_rule(tmp_path):
+    p = tmp_path / "s.parquet"
+    pd.DataFrame({"time": ["2026-07-14T19:00:00Z", "2026-07-14T19:00:01Z"], "lat": [45.5, 45.5],
+                  "lon": [-93.2, -93.2], "ip": [-12500.0, 31000.0]}).to_parquet(p)
+    with pytest.raises(InputError, match=r"'ip' states no unit.*up to 31000.*--current-unit A"):
+        read_strokes(p)
+    df, _ = read_strokes(p, config=cfg(current_unit="A"))
+    assert df["peak_current_ka"].tolist() == [-12.5, 31.0]
+
+
+# --- zero semi-axes --------------------------------------------------------------------------
+
+
+def test_zero_semi_axis_row_is_kept_without_ellipse_and_counted(tmp_path):
+    # 0.0 km is an export rounded to 0.1 km; a location error cannot be zero (constructed here).
+    p = write(tmp_path, HEADER + row() + row(t="2026-07-14T19:00:01Z", a=0.0, b=0.0, brg="")
+              + row(t="2026-07-14T19:00:02Z", a=0.3, b=0.0, brg=10.0) + row(t="2026-07-14T19:00:03Z", a=0.2, b=0.1))
+    df, led = read_strokes(p)
+    assert df["source_row"].tolist() == [2, 3, 4, 5]
+    assert df.loc[[1, 2], ["semi_major_km", "semi_minor_km", "major_bearing_deg"]].isna().all().all()
+    assert df.loc[3, "semi_major_km"] == 0.2 and df.loc[0, "semi_major_km"] == 0.4
+    assert led.rows_accepted == 4 and led.rows_rejected == 0
+    assert led.zero_ellipse == 2 and led.zero_ellipse_lines == [3, 4] and led.missing_ellipse == 2
+    assert any("semi-axis of 0 km" in n and "lines 3, 4" in n for n in led.notes)
+    assert "zero_ellipse" in led.to_text() and "(lines 3, 4)" in led.to_text()
+    d = json.loads(json.dumps(led.to_dict()))
+    assert d["zero_ellipse"] == 2 and d["zero_ellipse_lines"] == [3, 4]
+    assert "2 with a 0 km ellipse axis" in led.one_line()
+    led.check()
+
+
+def test_zero_semi_axis_uses_default_uncertainty_in_every_module(tmp_path):
+    from debrief.flashes import group_flashes
+    from debrief.outages import _covariance
+    from debrief.sites import check_site
+    from debrief.uncertainty import stroke_covariance
+
+    p = write(tmp_path, HEADER + row(a=0.0, b=0.0, brg=0.0) + row(t="2026-07-14T19:00:01Z", lat=45.6, a=0.4, b=0.2))
+    c = cfg(default_uncertainty_km=0.5)
+    df, led = read_strokes(p, config=c)
+    grouped, _ = group_flashes(df, c)
+    res = check_site(grouped, 45.5, -93.2, 0.5, config=c)
+    cand = res.candidates
+    assert len(cand) == 1 and bool(cand["ellipse_from_default"].iloc[0]) and cand["source_row"].iloc[0] == 2
+    # The stroke sits on the site and the circle's radius is the default 50 % semi-axis: the
+    # probability is 0.5 by the definition of the 50 % circle of a circular bivariate normal
+    # (Rayleigh distribution; common practice).
+    assert cand["p_within"].iloc[0] == pytest.approx(0.5, abs=1e-9)
+    # The outage code and the site code see the same covariance for that row.
+    sxx, syy, sxy, filled = stroke_covariance(df, c)
+    oxx, oyy, oxy, kind = _covariance(df, c)
+    assert filled.tolist() == [True, False] and kind.tolist() == ["default", "ellipse"]
+    np.testing.assert_allclose([sxx, syy, sxy], [oxx, oyy, oxy], rtol=1e-12)
 
 
 # --- times ----------------------------------------------------------------------------------

@@ -526,6 +526,15 @@ def test_missing_ellipses_need_a_default():
     assert sxx[0] == pytest.approx(0.078897, abs=1e-6)  # the check case of test_covariance_check_case
 
 
+def test_zero_axis_handed_in_directly_names_the_row():
+    # The reader turns a 0 km axis into NaN (no ellipse); a table built another way is refused
+    # with the stroke's source_row, not with a message that names no row.
+    strokes = pd.DataFrame({"semi_major_km": [0.5, 0.3], "semi_minor_km": [0.25, 0.0],
+                            "major_bearing_deg": [30.0, 0.0], "source_row": [7, 9]})
+    with pytest.raises(InputError, match=r"^stroke at source_row 9: error-ellipse semi-axes must be positive, got 0.3 and 0 km"):
+        U.stroke_covariance(strokes, default_uncertainty_km=0.4)
+
+
 def test_reach_bound_holds():
     # P(|e| > reach) <= tail for a 2-D normal (chi-square 2 df bound); checked with ncx2 (circular, worst case).
     sxx, syy, sxy = U.ellipse_covariance(1.0, 1.0, 0.0, 0.5)

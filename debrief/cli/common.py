@@ -8,7 +8,7 @@ from pathlib import Path
 
 from ..config import EventConfig, load_event_config, with_overrides
 from ..errors import InputError
-from ..timeutil import parse_user_time
+from ..timeutil import check_time_format, parse_user_time
 
 
 def parse_columns(text: str | None) -> dict[str, str] | None:
@@ -25,9 +25,26 @@ def parse_columns(text: str | None) -> dict[str, str] | None:
 
 
 def add_event_options(p: argparse.ArgumentParser) -> None:
-    """``--event`` and ``--tz``: every command takes them."""
+    """``--event``, ``--tz`` and ``--typed-time-format``: every command takes them."""
     p.add_argument("--event", metavar="EVENT_DIR", help="event folder whose event.toml supplies settings")
     p.add_argument("--tz", metavar="ZONE", help="IANA time zone for typed times without offset and for display")
+    add_typed_time_option(p)
+
+
+def add_typed_time_option(p: argparse.ArgumentParser) -> None:
+    """``--typed-time-format``: the strptime pattern of typed times that are not ISO 8601."""
+    p.add_argument("--typed-time-format", metavar="FORMAT",
+                   help="strptime pattern of typed times that are not ISO 8601 (sites, crew log, outage log, "
+                        "--start/--end), e.g. '%%d/%%m/%%Y %%H:%%M' (default: ISO 8601 only)")
+
+
+def typed_time_override(args) -> dict:
+    """``{"typed_time_format": ...}`` from ``--typed-time-format`` (empty when not given), checked
+    here so that a bad pattern names the option."""
+    fmt = getattr(args, "typed_time_format", None)
+    if fmt is None:
+        return {}
+    return {"typed_time_format": check_time_format(fmt, what="--typed-time-format")}
 
 
 def add_stroke_options(p: argparse.ArgumentParser, *, positional: bool = True) -> None:
@@ -36,7 +53,9 @@ def add_stroke_options(p: argparse.ArgumentParser, *, positional: bool = True) -
         p.add_argument("strokes", metavar="STROKES", help="stroke file (.csv or .parquet)")
     add_event_options(p)
     p.add_argument("--columns", metavar="MAP", help="explicit column map, e.g. time=UTC,latitude=Lat")
-    p.add_argument("--current-unit", choices=("kA", "A"), help="unit of the peak current column (default kA)")
+    p.add_argument("--current-unit", choices=("kA", "A"),
+                   help="unit of the peak current column; needed when its header states none (such as "
+                        "'current' or 'ip') and a value exceeds 1000 in magnitude")
     p.add_argument("--ellipse-confidence", type=float, metavar="P", help="confidence level of the ellipses (default 0.5)")
     p.add_argument("--strict", action="store_true", help="any rejected row is fatal")
 
@@ -48,6 +67,7 @@ def config_from_args(args) -> EventConfig:
         "time_zone": getattr(args, "tz", None),
         "current_unit": getattr(args, "current_unit", None),
         "ellipse_confidence": getattr(args, "ellipse_confidence", None),
+        **typed_time_override(args),
     }
     cols = parse_columns(getattr(args, "columns", None))
     if cols:
@@ -67,7 +87,7 @@ def load_strokes(path, cfg: EventConfig, *, strict: bool = False):
     from ..io.strokes import read_strokes
 
     strokes, ledger = read_strokes(Path(path), config=cfg, strict=strict)
-    if ledger.rows_rejected or ledger.duplicates_dropped:
+    if ledger.rows_rejected or ledger.duplicates_dropped or ledger.zero_ellipse:
         print(f"debrief: {ledger.one_line()}", file=sys.stderr)
     return strokes, ledger
 
@@ -77,8 +97,9 @@ def window_from_args(args, cfg: EventConfig):
     tz = cfg.time_zone
     start_text = getattr(args, "start", None) or cfg.get("start")
     end_text = getattr(args, "end", None) or cfg.get("end")
-    start = parse_user_time(start_text, tz, what="start") if start_text else None
-    end = parse_user_time(end_text, tz, what="end") if end_text else None
+    fmt = cfg.get("typed_time_format")
+    start = parse_user_time(start_text, tz, what="start", time_format=fmt) if start_text else None
+    end = parse_user_time(end_text, tz, what="end", time_format=fmt) if end_text else None
     if start is not None and end is not None and end <= start:
         raise InputError(f"end ({end_text}) is not after start ({start_text})")
     return start, end
@@ -98,7 +119,7 @@ def analysis_from_args(args, cfg: EventConfig, *, window=None, include_likely_ic
     if not src.is_file():
         raise InputError(f"stroke file not found: {src}")
     event = load_event(None, config=cfg, strokes_path=src, strict=getattr(args, "strict", False), optional=False)
-    if event.ledger.rows_rejected or event.ledger.duplicates_dropped:
+    if event.ledger.rows_rejected or event.ledger.duplicates_dropped or event.ledger.zero_ellipse:
         print(f"debrief: {event.ledger.one_line()}", file=sys.stderr)
     start, end = window if window is not None else window_from_args(args, cfg)
     return analyse(event, start, end, include_likely_ic=include_likely_ic,

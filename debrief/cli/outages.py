@@ -66,7 +66,7 @@ def run(args) -> int:
         if not (o.parent if str(o.parent) else Path(".")).is_dir():
             raise InputError(f"output folder does not exist: {o.parent}")
     lines, problems = read_lines(lines_path, config=cfg)
-    outages, o_problems = read_outages(outages_path, tz=cfg.time_zone, line_ids=lines["line_id"])
+    outages, o_problems = read_outages(outages_path, tz=cfg.time_zone, line_ids=lines["line_id"], time_format=cfg.get("typed_time_format"))
     problems = problems + o_problems
     rejected = [p for p in problems if p.severity == "rejected"]
     if args.strict and rejected:

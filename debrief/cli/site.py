@@ -136,17 +136,17 @@ def _print_cautions(cautions):
 
 def _event_window(cfg):
     """The event's analysis window from event.toml (None where unset: the data's extent)."""
-    tz = cfg.time_zone
-    start = parse_user_time(cfg.get("start"), tz, what="event.toml start") if cfg.get("start") else None
-    end = parse_user_time(cfg.get("end"), tz, what="event.toml end") if cfg.get("end") else None
+    tz, fmt = cfg.time_zone, cfg.get("typed_time_format")
+    start = parse_user_time(cfg.get("start"), tz, what="event.toml start", time_format=fmt) if cfg.get("start") else None
+    end = parse_user_time(cfg.get("end"), tz, what="event.toml end", time_format=fmt) if cfg.get("end") else None
     return start, end
 
 
 def _period_from_args(args, cfg):
     """A claim period from ``--start/--end`` only (None where not given: the window's bound)."""
-    tz = cfg.time_zone
-    start = parse_user_time(args.start, tz, what="--start") if args.start else None
-    end = parse_user_time(args.end, tz, what="--end") if args.end else None
+    tz, fmt = cfg.time_zone, cfg.get("typed_time_format")
+    start = parse_user_time(args.start, tz, what="--start", time_format=fmt) if args.start else None
+    end = parse_user_time(args.end, tz, what="--end", time_format=fmt) if args.end else None
     if start is not None and end is not None and end <= start:
         raise InputError(f"--end ({args.end}) is not after --start ({args.start})")
     return start, end
@@ -253,7 +253,7 @@ def run_sites(args) -> int:
     path = _sites_path(args, cfg)
     _check_out(args.out, args.strokes, path)
     _check_out(args.candidates_out, args.strokes, path)
-    sites, problems = read_sites(path, time_zone=cfg.time_zone)
+    sites, problems = read_sites(path, time_zone=cfg.time_zone, time_format=cfg.get("typed_time_format"))
     for pr in problems:
         print(f"debrief sites: {pr} (row skipped)", file=sys.stderr)
     claim = sites[sites["radius_km"].notna()]
@@ -297,12 +297,12 @@ def run_alerts(args) -> int:
     path = _sites_path(args, cfg)
     _check_out(args.out, args.strokes, path)
     _check_out(args.comparison_out, args.strokes, path)
-    sites, problems = read_sites(path, time_zone=cfg.time_zone)
+    sites, problems = read_sites(path, time_zone=cfg.time_zone, time_format=cfg.get("typed_time_format"))
     for pr in problems:
         print(f"debrief alerts: {pr} (row skipped)", file=sys.stderr)
     log = None
     if args.crew_log:
-        log, log_problems = read_crew_log(args.crew_log, time_zone=cfg.time_zone)
+        log, log_problems = read_crew_log(args.crew_log, time_zone=cfg.time_zone, time_format=cfg.get("typed_time_format"))
         for pr in log_problems:
             print(f"debrief alerts: {pr} (row skipped)", file=sys.stderr)
     crew = alert_sites(sites)

@@ -13,6 +13,7 @@ import sys
 
 from ..summary import GENERAL_CAUTIONS, summarise  # noqa: F401 (GENERAL_CAUTIONS: part of this module's API)
 from ..timeutil import parse_user_time
+from .common import add_typed_time_option, typed_time_override
 
 
 def register(subparsers) -> None:
@@ -26,6 +27,7 @@ def register(subparsers) -> None:
     p.add_argument("--start", metavar="ISO", help="window start (default: event.toml start or first stroke)")
     p.add_argument("--end", metavar="ISO", help="window end (default: event.toml end or last stroke)")
     p.add_argument("--tz", metavar="ZONE", help="IANA zone for display and for typed times without offset")
+    add_typed_time_option(p)
     p.add_argument("--top", type=int, default=10, metavar="N", help="list at most N continuing-current suspects (default 10)")
     p.add_argument("--json", action="store_true", help="print the numbers as JSON instead of text")
     p.add_argument("--strict", action="store_true", help="any rejected stroke row is fatal")
@@ -116,15 +118,18 @@ def render_text(s: dict) -> str:
 
 def run(args) -> int:
     from ..analysis import analyse
+    from ..config import load_event_config, with_overrides
     from ..event import load_event
 
-    overrides = {"time_zone": args.tz} if args.tz else None
-    event = load_event(args.event_dir, overrides=overrides, strict=args.strict)
-    if event.ledger.rows_rejected or event.ledger.duplicates_dropped:
+    overrides = {"time_zone": args.tz, **typed_time_override(args)}
+    cfg = with_overrides(load_event_config(args.event_dir), overrides)
+    # Typed times first: a mistake there is one line, before the stroke file is read.
+    tz, fmt = cfg.time_zone, cfg.get("typed_time_format")
+    start = parse_user_time(args.start, tz, what="--start", time_format=fmt) if args.start else None
+    end = parse_user_time(args.end, tz, what="--end", time_format=fmt) if args.end else None
+    event = load_event(args.event_dir, config=cfg, strict=args.strict)
+    if event.ledger.rows_rejected or event.ledger.duplicates_dropped or event.ledger.zero_ellipse:
         print(f"debrief: {event.ledger.one_line()}", file=sys.stderr)
-    tz = event.config.time_zone
-    start = parse_user_time(args.start, tz, what="--start") if args.start else None
-    end = parse_user_time(args.end, tz, what="--end") if args.end else None
     s = summarise(analyse(event, start, end), top=args.top)
     if args.json:
         print(json.dumps(s, indent=2))

@@ -37,6 +37,11 @@ class Ledger:
         Line numbers of the first dropped duplicates.
     missing_ellipse : int
         Accepted rows without a (complete) location error ellipse; 0 for readers without one.
+    zero_ellipse : int
+        Of those, rows whose ellipse had a zero semi-axis (an export rounded to 0.0 km): the row
+        is kept and treated as having no ellipse.
+    zero_ellipse_lines : list of int
+        Line numbers of the first such rows.
     notes : list of str
         Plain sentences: assumptions made, units converted, column mapping used, ...
     """
@@ -48,6 +53,8 @@ class Ledger:
     duplicates_dropped: int = 0
     duplicate_lines: list = field(default_factory=list)
     missing_ellipse: int = 0
+    zero_ellipse: int = 0
+    zero_ellipse_lines: list = field(default_factory=list)
     notes: list = field(default_factory=list)
 
     @property
@@ -84,6 +91,13 @@ class Ledger:
         merged = set(self.duplicate_lines) | set(int(x) for x in np.sort(lines)[:FIRST_LINES])
         self.duplicate_lines = sorted(merged)[:FIRST_LINES]
 
+    def add_zero_ellipse(self, lines) -> None:
+        """Count kept rows whose zero semi-axis made their ellipse missing, at these line numbers."""
+        lines = np.asarray(lines, dtype=np.int64).ravel()
+        self.zero_ellipse += int(lines.size)
+        merged = set(self.zero_ellipse_lines) | set(int(x) for x in np.sort(lines)[:FIRST_LINES])
+        self.zero_ellipse_lines = sorted(merged)[:FIRST_LINES]
+
     def note(self, text: str) -> None:
         """Add a note once (repeated notes are kept only the first time)."""
         if text not in self.notes:
@@ -105,10 +119,13 @@ class Ledger:
         for reason, r in self.rejected.items():
             if r["count"] <= 0 or len(r["first_lines"]) != min(r["count"], FIRST_LINES):
                 raise ValueError(f"ledger of {self.source}: inconsistent entry for {reason}: {r}")
-        if min(self.rows_accepted, self.duplicates_dropped, self.missing_ellipse) < 0:
+        if min(self.rows_accepted, self.duplicates_dropped, self.missing_ellipse, self.zero_ellipse) < 0:
             raise ValueError(f"ledger of {self.source}: negative count")
         if self.missing_ellipse > self.rows_accepted:
             raise ValueError(f"ledger of {self.source}: more rows without ellipse than accepted rows")
+        if self.zero_ellipse > self.missing_ellipse or len(self.zero_ellipse_lines) != min(self.zero_ellipse, FIRST_LINES):
+            raise ValueError(f"ledger of {self.source}: zero-axis ellipses {self.zero_ellipse} do not agree with "
+                             f"their lines {self.zero_ellipse_lines} or the rows without ellipse")
 
     @property
     def consistent(self) -> bool:
@@ -139,6 +156,8 @@ class Ledger:
             "duplicates_dropped": int(self.duplicates_dropped),
             "duplicate_lines": [int(x) for x in self.duplicate_lines],
             "missing_ellipse": int(self.missing_ellipse),
+            "zero_ellipse": int(self.zero_ellipse),
+            "zero_ellipse_lines": [int(x) for x in self.zero_ellipse_lines],
             "notes": [str(n) for n in self.notes],
         }
 
@@ -153,6 +172,8 @@ class Ledger:
         if self.duplicates_dropped:
             word = "duplicate" if self.duplicates_dropped == 1 else "duplicates"
             parts.append(f"{self.duplicates_dropped:,} {word} dropped")
+        if self.zero_ellipse:
+            parts.append(f"{self.zero_ellipse:,} with a 0 km ellipse axis taken as no ellipse")
         parts.append("see the ledger")
         return "; ".join(parts)
 
@@ -179,6 +200,9 @@ class Ledger:
         tail = where(self.duplicate_lines, self.duplicates_dropped) if self.duplicates_dropped else ""
         lines.append(row("duplicates dropped", self.duplicates_dropped, tail))
         lines.append(row("without ellipse", self.missing_ellipse))
+        if self.zero_ellipse:
+            lines.append(f"    {'zero_ellipse':<19}{self.zero_ellipse:>{w},}  a semi-axis of 0 km, taken as no ellipse "
+                         f"{where(self.zero_ellipse_lines, self.zero_ellipse)}")
         if self.notes:
             lines.append("Notes:")
             lines.extend(f"  - {n}" for n in self.notes)

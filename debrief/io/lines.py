@@ -23,7 +23,7 @@ from shapely.geometry import LineString, MultiLineString
 
 from ..errors import InputError
 from ..geodesy import WGS84
-from ..timeutil import zone
+from ..timeutil import read_typed_time, zone
 from .problems import Problem
 
 LINE_COLUMNS = ["line_id", "name", "height_m", "cfo_kv", "spacing_m", "shielded", "height_defaulted",
@@ -190,15 +190,13 @@ def read_lines(path, *, config=None):
     return lines, problems
 
 
-def _read_time(text, tz, what):
+def _read_time(text, tz, what, time_format=None):
     """(Timestamp UTC ns, None) or (None, message); no offset and no zone is fatal."""
     s = str(text).strip()
     try:
-        ts = pd.Timestamp(s)
-    except (ValueError, TypeError):
-        return None, f"cannot read {what} {s!r} as an ISO 8601 time"
-    if ts is pd.NaT or pd.isna(ts):
-        return None, f"cannot read {what} {s!r} as an ISO 8601 time"
+        ts = read_typed_time(s, time_format=time_format)
+    except ValueError as e:
+        return None, f"{what} {e}"
     if ts.tzinfo is None:
         z = zone(tz)
         if z is None:
@@ -209,10 +207,13 @@ def _read_time(text, tz, what):
             ts = ts.tz_localize(z, ambiguous="raise", nonexistent="raise")
         except Exception:
             return None, f"{what} {s!r} does not exist or is ambiguous in {tz} (a DST change); add an offset"
-    return ts.tz_convert("UTC").as_unit("ns"), None
+    try:
+        return ts.tz_convert("UTC").as_unit("ns"), None
+    except (ValueError, OverflowError):
+        return None, f"{what} {s!r} is outside the years 1678-2261"
 
 
-def read_outages(path, *, tz: str | None, line_ids=None):
+def read_outages(path, *, tz: str | None, line_ids=None, time_format: str | None = None):
     """Read an outage log.
 
     Parameters
@@ -222,12 +223,15 @@ def read_outages(path, *, tz: str | None, line_ids=None):
         ``latitude`` and ``longitude`` (both or neither), ``device``, ``clock_tolerance_s`` (s,
         overrides ``[lines] clock_tolerance_s``) and ``reclose_times``: the later operations of a
         reclosing sequence, ``;``-separated, each either seconds after ``time`` (``0.5;15.5``)
-        or a time (read like ``time``).
+        or a time (read like ``time``). Times are ISO 8601 or `time_format`; any other text
+        (``01/11/2026``) makes the row a problem naming the line, the value and the fix.
     tz : str or None
         Zone of times without an offset (the event's ``time_zone`` or ``--tz``). With None, such
         a time stops the read with a message asking for a zone.
     line_ids : iterable of str, optional
         Known line ids; an outage naming another is kept with a problem and not analysed.
+    time_format : str, optional
+        ``typed_time_format``: strptime pattern for times that are not ISO 8601.
 
     Returns
     -------
@@ -273,7 +277,7 @@ def read_outages(path, *, tz: str | None, line_ids=None):
             continue
         seen.add(oid)
         rows.append(row)
-        ts, err = _read_time(rec["time"], tz, f"{name} {where}: time")
+        ts, err = _read_time(rec["time"], tz, f"{name} {where}: time", time_format)
         if err:
             bad(err.replace(f"{name} {where}: ", ""))
             continue
@@ -316,7 +320,7 @@ def read_outages(path, *, tz: str | None, line_ids=None):
                     if t_op is None:
                         err = f"reclose time {item!r} is not finite"
                 except ValueError:
-                    t_op, err = _read_time(item, tz, "reclose time")
+                    t_op, err = _read_time(item, tz, "reclose time", time_format)
                 if err:
                     break
                 if t_op < ts:

@@ -49,17 +49,21 @@ def _number(text: str, what: str = "value"):
     return v
 
 
-def read_sites(path, *, time_zone: str | None = None):
+def read_sites(path, *, time_zone: str | None = None, time_format: str | None = None):
     """Read a sites table (claim sites with a radius, crew sites with a stop radius).
 
     Parameters
     ----------
     path : path
         CSV with columns ``name, latitude, longitude`` and at least one of ``radius_km`` or
-        ``stop_km``; optional ``warn_km``, ``start``, ``end`` (ISO 8601; without an offset read in
-        `time_zone`) and ``parcel_file`` (GeoJSON path, relative to the sites file's folder).
+        ``stop_km``; optional ``warn_km``, ``start``, ``end`` (ISO 8601 or `time_format`; without
+        an offset read in `time_zone`) and ``parcel_file`` (GeoJSON path, relative to the sites
+        file's folder).
     time_zone : str, optional
         IANA zone for typed times without an offset.
+    time_format : str, optional
+        ``typed_time_format``: strptime pattern for times that are not ISO 8601. Any other text
+        is refused (the row is a problem naming the line, the value and the fix).
 
     Returns
     -------
@@ -80,7 +84,7 @@ def read_sites(path, *, time_zone: str | None = None):
     for i, rec in enumerate(raw.to_dict("records")):
         line = i + 2
         try:
-            rows.append(_site_row(rec, line, time_zone, p.parent))
+            rows.append(_site_row(rec, line, time_zone, p.parent, time_format))
         except (ValueError, InputError) as e:
             problems.append(Problem.at_line(str(p), line, str(e)))
     cols = ["name", "latitude", "longitude", "radius_km", "stop_km", "warn_km", "start", "end", "parcel_file", "source_row"]
@@ -93,7 +97,7 @@ def read_sites(path, *, time_zone: str | None = None):
     return sites, problems
 
 
-def _site_row(rec: dict, line: int, tz, folder: Path) -> dict:
+def _site_row(rec: dict, line: int, tz, folder: Path, time_format=None) -> dict:
     name = rec.get("name", "").strip()
     if not name:
         raise ValueError("the site has no name")
@@ -117,7 +121,7 @@ def _site_row(rec: dict, line: int, tz, folder: Path) -> dict:
         raise ValueError(f"site {name!r}: warn_km ({out['warn_km']}) is smaller than stop_km ({out['stop_km']})")
     for c in ("start", "end"):
         t = rec.get(c, "").strip()
-        out[c] = parse_user_time(t, tz, what=f"site {name!r} {c}") if t else pd.NaT
+        out[c] = parse_user_time(t, tz, what=f"site {name!r} {c}", time_format=time_format) if t else pd.NaT
     if out["start"] is not pd.NaT and out["end"] is not pd.NaT and out["end"] <= out["start"]:
         raise ValueError(f"site {name!r}: end is not after start")
     parcel = rec.get("parcel_file", "").strip()
@@ -127,16 +131,18 @@ def _site_row(rec: dict, line: int, tz, folder: Path) -> dict:
     return out
 
 
-def read_crew_log(path, *, time_zone: str | None = None):
+def read_crew_log(path, *, time_zone: str | None = None, time_format: str | None = None):
     """Read a crew log: when work stopped and resumed at each site.
 
     Parameters
     ----------
     path : path
-        CSV with ``site, stopped, resumed`` (typed times; without an offset read in `time_zone`;
-        ``resumed`` may be blank when work did not resume within the log).
+        CSV with ``site, stopped, resumed`` (typed times, ISO 8601 or `time_format`; without an
+        offset read in `time_zone`; ``resumed`` may be blank when work did not resume within the log).
     time_zone : str, optional
         IANA zone for typed times without an offset.
+    time_format : str, optional
+        ``typed_time_format``: strptime pattern for times that are not ISO 8601.
 
     Returns
     -------
@@ -159,8 +165,9 @@ def read_crew_log(path, *, time_zone: str | None = None):
                 raise ValueError("no site name")
             if not rec["stopped"].strip():
                 raise ValueError(f"site {site!r}: no stopped time")
-            stopped = parse_user_time(rec["stopped"], time_zone, what=f"crew log line {line} stopped")
-            resumed = parse_user_time(rec["resumed"], time_zone, what=f"crew log line {line} resumed") if rec["resumed"].strip() else pd.NaT
+            stopped = parse_user_time(rec["stopped"], time_zone, what=f"site {site!r} stopped", time_format=time_format)
+            resumed = (parse_user_time(rec["resumed"], time_zone, what=f"site {site!r} resumed", time_format=time_format)
+                       if rec["resumed"].strip() else pd.NaT)
             if resumed is not pd.NaT and resumed < stopped:
                 raise ValueError(f"site {site!r}: resumed before it stopped")
             rows.append({"site": site, "stopped": stopped, "resumed": resumed, "source_row": line})

@@ -10,7 +10,9 @@ with their line numbers; exact duplicates are dropped once, over the whole file.
 Header names are matched through one table (:data:`SYNONYMS`); anything else is mapped
 explicitly (``columns`` in event.toml, ``--columns`` on the command line). How a network writes
 its export (type codes, unsigned current with a polarity column, full ellipse axes, bearings from
-east, epoch seconds, current in A) is stated by reader options, never guessed.
+east, epoch seconds, current in A) is stated by reader options, never guessed. A current
+column whose header states no unit (``current``, ``ip``) is read as kA only when no value could
+be amperes (every |value| <= 1000, noted in the ledger); otherwise the unit must be stated.
 """
 
 from __future__ import annotations
@@ -44,7 +46,8 @@ SYNONYMS: dict[str, tuple[str, ...]] = {
     "time": ("time", "datetime", "date_time", "timestamp", "time_utc", "datetime_utc", "timestamp_utc"),
     "latitude": ("latitude", "lat", "lat_deg", "latitude_deg"),
     "longitude": ("longitude", "lon", "lng", "long", "lon_deg", "longitude_deg"),
-    "peak_current_ka": ("peak_current_ka", "peak_current", "current", "current_ka", "ip", "ip_ka"),
+    "peak_current_ka": ("peak_current_ka", "peak_current", "current", "current_ka", "ip", "ip_ka",
+                        "peak_current_a", "current_a", "ip_a"),
     "type": ("type", "stroke_type", "cg_ic"),
     "semi_major_km": ("semi_major_km", "semi_major", "semimajor", "semimajor_km", "semi_major_axis", "semi_major_axis_km"),
     "semi_minor_km": ("semi_minor_km", "semi_minor", "semiminor", "semiminor_km", "semi_minor_axis", "semi_minor_axis_km"),
@@ -89,6 +92,22 @@ def normalise_header(name) -> str:
     return re.sub(r"[^0-9a-z]+", "_", str(name).strip().lower()).strip("_")
 
 
+_UNIT_WORDS = {"ka": "kA", "kiloamperes": "kA", "kiloampere": "kA", "a": "A", "amp": "A", "amps": "A",
+               "ampere": "A", "amperes": "A"}
+
+#: Largest |peak current| read as kA from a column whose header states no unit (our own setting:
+#: recorded stroke peak currents stay within a few hundred kA, common practice, while a stroke
+#: current written in amperes exceeds 1000 A; beyond this limit the unit must be stated).
+UNITLESS_KA_LIMIT = 1000.0
+
+
+def header_current_unit(header) -> str | None:
+    """The unit a current column's header states: ``"kA"`` (``peak_current_ka``, "Peak Current
+    (kA)", ``kA``), ``"A"`` (``current_a``, "Peak current (A)") or None (``current``, ``ip``)."""
+    words = normalise_header(header).split("_")
+    return _UNIT_WORDS.get(words[-1]) if words else None
+
+
 _SYNONYM_OF = {s: canon for canon, names in SYNONYMS.items() for s in names}
 
 
@@ -114,6 +133,7 @@ def _options(config, columns) -> dict:
         "type_codes": codes,
         "polarity_column": config.get("polarity_column"),
         "current_unit": config.get("current_unit"),
+        "current_unit_given": config.is_given("", "current_unit"),
         "ellipse_axes": config.get("ellipse_axes"),
         "bearing_convention": config.get("bearing_convention"),
         "time_format": config.get("time_format"),
@@ -318,7 +338,7 @@ def _datetimes_ns(dt: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 
 
 # Per-row flags carried to the end so the notes count only the rows that are kept.
-NAIVE, EPOCH, OFFSET, PARTIAL = 1, 2, 4, 8
+NAIVE, EPOCH, OFFSET, PARTIAL, ZERO_AXIS = 1, 2, 4, 8, 16
 
 
 def _times(arr, fmt: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -427,7 +447,7 @@ def convert_chunk(raw, mapping: dict, polarity: str | None, opts: dict, source_r
     -------
     cols : dict of ndarray
         Canonical columns of every row (``time`` as int64 ns, ``type`` as int8 0 = CG, 1 = IC)
-        and ``flags`` (int8 bits NAIVE, EPOCH, OFFSET, PARTIAL for the ledger's notes).
+        and ``flags`` (int8 bits NAIVE, EPOCH, OFFSET, PARTIAL, ZERO_AXIS for the ledger's notes).
     code : ndarray of int8
         0 for an accepted row, else the reason's number in :data:`REASONS` order.
     """
@@ -491,6 +511,11 @@ def convert_chunk(raw, mapping: dict, polarity: str | None, opts: dict, source_r
     have = np.isfinite(a) & np.isfinite(b) & np.isfinite(brg)
     some = ~np.isnan(a) | ~np.isnan(b) | ~np.isnan(ell["major_bearing_deg"])
     flags |= np.where(some & ~have, PARTIAL, 0).astype("int8")
+    # A zero semi-axis (such as an export rounded to 0.1 km) is no location error: the stroke
+    # keeps its place and is treated as having no ellipse, so default_uncertainty_km applies.
+    zero = have & ((a == 0.0) | (b == 0.0))
+    flags |= np.where(zero, ZERO_AXIS, 0).astype("int8")
+    have &= ~zero
     cols["flags"] = flags
     cols["semi_major_km"] = np.where(have, a, np.nan)
     cols["semi_minor_km"] = np.where(have, b, np.nan)
@@ -674,6 +699,20 @@ def _extra_columns(parts: list, names: list[str], is_text: bool, order: np.ndarr
 # the reader
 
 
+def _current_unit(path, header: str, opts: dict) -> str | None:
+    """The current column's unit: stated (``current_unit`` given), else the header's own, else
+    None (decided after the read from the largest value). A stated unit against the header's
+    is an InputError."""
+    from_header = header_current_unit(header)
+    stated = opts["current_unit"] if opts["current_unit_given"] else None
+    if stated is not None and from_header is not None and stated != from_header:
+        raise InputError(
+            f"{path}: current_unit is {stated!r} but the peak current column '{header}' says {from_header}; "
+            f"drop current_unit (event.toml) / --current-unit, or set it to {from_header!r}"
+        )
+    return stated or from_header
+
+
 def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool = False,
                  chunksize: int = 500_000) -> tuple[pd.DataFrame, Ledger]:
     """Read a stroke file (CSV or Parquet) into the canonical stroke table.
@@ -707,8 +746,8 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
     ------
     InputError
         Missing, unreadable or empty file, unknown extension, a required column that is not
-        there, an explicit map naming an absent header, no usable row, or with `strict` any
-        rejected row.
+        there, an explicit map naming an absent header, no usable row, a current unit that is
+        not stated where it must be or contradicts the header, or with `strict` any rejected row.
 
     Notes
     -----
@@ -719,7 +758,13 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
     - Duplicates are rows equal in every canonical column (extra columns not compared); the
       first is kept.
     - An ellipse is kept only whole (both axes and a bearing; a circle needs no bearing and gets
-      0); otherwise its three columns are NaN and the row counts in ``missing_ellipse``.
+      0); otherwise its three columns are NaN and the row counts in ``missing_ellipse``. An
+      ellipse with a semi-axis of 0 km is treated the same and also counted in ``zero_ellipse``
+      with its line numbers.
+    - The current unit: a stated ``current_unit`` or the header's own unit (``..._ka``,
+      ``..._a``; the two must agree). A header with no unit (``current``, ``ip``) is read as
+      kA when every accepted |value| is at most :data:`UNITLESS_KA_LIMIT` (a ledger note says
+      so); otherwise the read stops and asks for ``current_unit``.
     - Parquet: ``source_row`` is the row index + 1; typed columns are used as stored.
 
     References
@@ -745,6 +790,8 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
     else:
         headers, chunks = _parquet_chunks(path, int(chunksize), ledger)
     mapping, how, polarity = plan_columns(headers, opts["columns"], opts["polarity_column"])
+    opts["current_unit"] = _current_unit(path, mapping["peak_current_ka"], opts)
+    max_abs_current = 0.0  # over accepted rows, for a header without a unit
     used = set(mapping.values())
     extras = [h for h in headers if h not in used]
     renamed = {h: f"{h}_input" for h in extras if h in CANONICAL or h == "source_row"}
@@ -765,6 +812,8 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
         rows_read += int((~empty).sum())
         for c in set(np.unique(code[~empty]).tolist()) - {0}:
             rejected_lines.setdefault(int(c), []).append(source_row[code == c])
+        if opts["current_unit"] is None and ok.any():
+            max_abs_current = max(max_abs_current, float(np.max(np.abs(cols["peak_current_ka"][ok]))))
         for c in keep_cols:
             parts[c].append(cols[c][ok])
         rows_parts.append(source_row[ok])
@@ -804,11 +853,19 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
             f"first {first_reason} on {_where(entry)}"
         )
 
+    if opts["current_unit"] is None and max_abs_current > UNITLESS_KA_LIMIT:
+        raise InputError(
+            f"{path}: the peak current column '{mapping['peak_current_ka']}' states no unit and holds "
+            f"|values| up to {max_abs_current:g}, more than {UNITLESS_KA_LIMIT:g} kA; state the unit: "
+            f'current_unit = "A" in event.toml or --current-unit A (or "kA")'
+        )
+
     # Exact duplicates over the whole file (chunks cannot see each other); the first is kept.
     dup = _duplicates(cols)
     if dup.any():
         ledger.add_duplicates(cols["source_row"][dup])
     keep = ~dup
+    zero_axis_lines = cols["source_row"][keep & ((flags & ZERO_AXIS) != 0)]
     ledger.rows_accepted = int(keep.sum())
 
     if strict and ledger.rows_rejected:
@@ -837,6 +894,7 @@ def read_strokes(path, *, config=None, columns: dict | None = None, strict: bool
     out = pd.DataFrame(data, copy=False)
 
     ledger.missing_ellipse = int(out["semi_major_km"].isna().sum())
+    ledger.add_zero_ellipse(zero_axis_lines)
     kept = flags[keep]
     tally = {name: int(((kept & bit) != 0).sum()) for name, bit in
              (("naive", NAIVE), ("epoch", EPOCH), ("offset", OFFSET), ("partial_ellipse", PARTIAL))}
@@ -884,6 +942,11 @@ def _notes(ledger, mapping, how, polarity, opts, tally, extras, renamed, n_out) 
         ledger.note(f"times read as epoch seconds since 1970-01-01T00:00:00Z ({_n(tally['epoch'], 'row')})")
     if opts["current_unit"] == "A":
         ledger.note("peak current converted from A to kA")
+    elif opts["current_unit"] is None:
+        ledger.note(
+            f"the peak current column '{mapping['peak_current_ka']}' states no unit: read as kA because every "
+            f"|value| is at most {UNITLESS_KA_LIMIT:g}; state it with current_unit in event.toml or --current-unit"
+        )
     if polarity is not None:
         ledger.note(f"peak current is unsigned in the file; polarity taken from column '{polarity}'")
     present = [c for c in ELLIPSE if c in mapping]
@@ -899,6 +962,13 @@ def _notes(ledger, mapping, how, polarity, opts, tally, extras, renamed, n_out) 
             ledger.note("ellipse bearings converted from counter-clockwise-from-east to clockwise-from-north")
     if tally["partial_ellipse"]:
         ledger.note(f"ellipses with a blank axis or bearing were treated as missing ({_n(tally['partial_ellipse'], 'row')})")
+    if ledger.zero_ellipse:
+        first = ", ".join(str(x) for x in ledger.zero_ellipse_lines)
+        more = ", ..." if ledger.zero_ellipse > len(ledger.zero_ellipse_lines) else ""
+        ledger.note(
+            f"ellipses with a semi-axis of 0 km were treated as missing, as a location error cannot be zero "
+            f"({_n(ledger.zero_ellipse, 'row')}; {'line' if ledger.zero_ellipse == 1 else 'lines'} {first}{more})"
+        )
     if ledger.missing_ellipse:
         ledger.note(
             f"{ledger.missing_ellipse:,} of {n_out:,} accepted strokes have no error ellipse; location "

@@ -293,8 +293,8 @@ def render_report(event_dir, out_path, *, sites=None, start=None, end=None, show
     say("load", f"reading settings of {event_dir}")
     cfg = with_overrides(load_event_config(event_dir), {"time_zone": tz})
     # Typed times are checked here, before a kernel starts, so a mistake is one plain line.
-    t_start = parse_user_time(start, cfg.time_zone, what="--start") if start is not None and not isinstance(start, pd.Timestamp) else start
-    t_end = parse_user_time(end, cfg.time_zone, what="--end") if end is not None and not isinstance(end, pd.Timestamp) else end
+    t_start = parse_user_time(start, cfg.time_zone, what="--start", time_format=cfg.get("typed_time_format")) if start is not None and not isinstance(start, pd.Timestamp) else start
+    t_end = parse_user_time(end, cfg.time_zone, what="--end", time_format=cfg.get("typed_time_format")) if end is not None and not isinstance(end, pd.Timestamp) else end
     if t_start is not None and t_end is not None and t_end <= t_start:
         raise InputError(f"event {cfg.name!r}: end ({end}) is not after start ({start})")
     if not cfg.path("strokes").exists():
