@@ -114,11 +114,11 @@ class Analysis:
         return self._cached("stroke_index", lambda: StrokeIndex(self.event.strokes, self.config))
 
     def contact_index(self, include_likely_ic: bool | None = None):
-        from .sites import _contact_index
+        from .sites import build_contact_index
 
         inc = self.include_likely_ic if include_likely_ic is None else bool(include_likely_ic)
         return self._cached(("contact_index", inc),
-                            lambda: _contact_index(self.event.strokes, self.config, inc))
+                            lambda: build_contact_index(self.event.strokes, self.config, inc))
 
     def _clip(self, start, end):
         """A site period met with the window (None: the window's own bound)."""
@@ -252,9 +252,8 @@ def analyse(event, start=None, end=None, *, include_likely_ic: bool = False, det
     """
     a = event.start if start is None else pd.Timestamp(start)
     b = event.end if end is None else pd.Timestamp(end)
-    if b <= a:
-        how = "is before" if b < a else "equals"
-        raise InputError(f"the window's end ({iso_utc(b)}) {how} its start ({iso_utc(a)})")
+    if b < a:  # equal is allowed: a file of one stroke has a window of one instant
+        raise InputError(f"the window's end ({iso_utc(b)}) is before its start ({iso_utc(a)})")
     cov = _coverage_of(event).with_window(a, b)
     return Analysis(event=event, start=a, end=b, coverage=cov, include_likely_ic=bool(include_likely_ic),
                     detection_efficiency=detection_efficiency, de_source=de_source)

@@ -237,6 +237,8 @@ def _check(section: str, key: str, value, where: str):
             raise InputError(f"{where}: {e}") from None
     if key == "typed_time_format" and value is not None:
         check_time_format(value, what=f"{where}:")
+    if key == "coverage_bbox" and value is not None:
+        value = list(check_bbox(value, where))
     if key in ("columns", "type_codes"):
         for k, v in value.items():
             if not isinstance(v, str):
@@ -244,6 +246,25 @@ def _check(section: str, key: str, value, where: str):
     if isinstance(value, (int, float)) and not isinstance(value, bool) and float in spec.types:
         return float(value)
     return value
+
+
+def check_bbox(bbox, where: str = "event.toml coverage_bbox") -> tuple[float, float, float, float]:
+    """``[west, south, east, north]`` in degrees, checked (west > east crosses 180 degrees)."""
+    fix = "write coverage_bbox = [west, south, east, north] in degrees, e.g. [-94.5, 44.8, -92.0, 46.2]"
+    if not isinstance(bbox, (list, tuple)) or len(bbox) != 4:
+        raise InputError(f"{where}: expected 4 numbers; {fix}")
+    if any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in bbox):
+        raise InputError(f"{where}: expected 4 numbers, got {bbox!r}; {fix}")
+    w, s, e, n = (float(v) for v in bbox)
+    if not all(math.isfinite(v) for v in (w, s, e, n)):
+        raise InputError(f"{where}: every value must be finite; {fix}")
+    if not (-180.0 <= w <= 180.0 and -180.0 <= e <= 180.0):
+        raise InputError(f"{where}: west and east must be within [-180, 180], got {w:g}, {e:g}; {fix}")
+    if not (-90.0 <= s < n <= 90.0):
+        raise InputError(f"{where}: need -90 <= south < north <= 90, got south {s:g}, north {n:g}; {fix}")
+    if w == e:
+        raise InputError(f"{where}: west equals east ({w:g}); {fix}")
+    return w, s, e, n
 
 
 def _type_word(spec: Key) -> str:
@@ -341,7 +362,8 @@ def markdown_table() -> str:
     for s, keys in _SCHEMA.items():
         for k, spec in keys.items():
             d = "none" if spec.default is None else ("{}" if spec.default == {} else repr(spec.default))
-            rows.append(f"| {('[' + s + ']') if s else 'top level'} | `{k}` | {d} | {spec.doc} |")
+            doc = spec.doc.replace("|", "\\|")  # |Ip| must not end a Markdown cell
+            rows.append(f"| {('[' + s + ']') if s else 'top level'} | `{k}` | {d} | {doc} |")
     return "\n".join(rows) + "\n"
 
 

@@ -178,17 +178,3 @@ def _empty() -> pd.DataFrame:
     out["ellipse_from_default"] = out["ellipse_from_default"].astype(bool)
     out["location_error"] = out["location_error"].astype(object)
     return out
-
-
-def stroke_contact_index(strokes: pd.DataFrame, contacts: pd.DataFrame) -> np.ndarray:
-    """Row of `contacts` for every stroke (-1 for strokes in no contact of the table)."""
-    key_c = contacts["flash_id"].to_numpy(np.int64) * (1 << 20) + contacts["ground_contact"].to_numpy(np.int64)
-    key_s = strokes["flash_id"].to_numpy(np.int64) * (1 << 20) + strokes["ground_contact"].to_numpy(np.int64)
-    order = np.argsort(key_c, kind="stable")
-    pos = np.searchsorted(key_c[order], key_s)
-    pos = np.minimum(pos, max(key_c.size - 1, 0))
-    out = np.full(len(strokes), -1, np.int64)
-    if key_c.size:
-        found = key_c[order][pos] == key_s
-        out[found] = order[pos[found]]
-    return out

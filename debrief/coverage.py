@@ -210,21 +210,9 @@ def _bbox_text(w, s, e, n) -> str:
 
 
 def _declared_bbox(bbox):
-    fix = "write coverage_bbox = [west, south, east, north] in degrees, e.g. [-94.5, 44.8, -92.0, 46.2]"
-    if not isinstance(bbox, (list, tuple)) or len(bbox) != 4:
-        raise InputError(f"event.toml coverage_bbox: expected 4 numbers; {fix}")
-    try:
-        w, s, e, n = (float(v) for v in bbox)
-    except (TypeError, ValueError):
-        raise InputError(f"event.toml coverage_bbox: expected 4 numbers, got {bbox!r}; {fix}") from None
-    if not all(math.isfinite(v) for v in (w, s, e, n)):
-        raise InputError(f"event.toml coverage_bbox: every value must be finite; {fix}")
-    if not (-180.0 <= w <= 180.0 and -180.0 <= e <= 180.0):
-        raise InputError(f"event.toml coverage_bbox: west and east must be within [-180, 180], got {w:g}, {e:g}; {fix}")
-    if not (-90.0 <= s < n <= 90.0):
-        raise InputError(f"event.toml coverage_bbox: need -90 <= south < north <= 90, got south {s:g}, north {n:g}; {fix}")
-    if w == e:
-        raise InputError(f"event.toml coverage_bbox: west equals east ({w:g}); {fix}")
+    from .config import check_bbox
+
+    w, s, e, n = check_bbox(bbox)
     return _bbox_polygon(w, s, e, n), _bbox_text(w, s, e, n)
 
 

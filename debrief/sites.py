@@ -713,7 +713,9 @@ def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t
 
 # --- public API -------------------------------------------------------------------------------
 
-def _contact_index(strokes, config, include_likely_ic, contacts=None):
+def build_contact_index(strokes, config=None, include_likely_ic=False, contacts=None) -> StrokeIndex:
+    """A :class:`StrokeIndex` over the ground contacts (:func:`debrief.contacts.contact_fixes`) of
+    a grouped stroke table: build it once beside the stroke index for repeated checks."""
     from .contacts import contact_fixes
 
     if contacts is None:
@@ -773,7 +775,7 @@ def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, co
     if index is None:
         index = StrokeIndex(strokes, config)
     if contact_index is None:
-        contact_index = _contact_index(index.strokes, config, include_likely_ic)
+        contact_index = build_contact_index(index.strokes, config, include_likely_ic)
     tz = config.time_zone if config is not None else None
     t_start = _to_utc(start, tz, "start")
     t_end = _to_utc(end, tz, "end")
@@ -981,7 +983,7 @@ def check_sites(strokes, sites: pd.DataFrame, config=None, *, include_likely_ic=
     if index is None:
         index = StrokeIndex(strokes, config)
     if contact_index is None:
-        contact_index = _contact_index(index.strokes, config, include_likely_ic)
+        contact_index = build_contact_index(index.strokes, config, include_likely_ic)
     run = _run(index, contact_index, s, config, include_likely_ic, detection_efficiency, de_source, coverage)
     n = len(s)
     summ = run.summ

@@ -141,3 +141,20 @@ def test_alert_sites_selects_crew_rows():
                           "radius_km": [1.0, np.nan], "stop_km": [np.nan, 8.0]})
     assert A.alert_sites(sites)["name"].tolist() == ["Crew"]
     assert A.alert_sites(sites.drop(columns="stop_km"))["name"].tolist() == ["Claim", "Crew"]
+
+
+def test_open_at_start_and_coverage_of_periods():
+    # A period whose first stroke comes within the all-clear time after the data start may have
+    # begun earlier; periods carry their coverage when a coverage is given (constructed here).
+    from debrief.config import from_dict
+    from debrief.coverage import data_coverage
+
+    s = strokes_at([5, 12, 70, 80])
+    data_start = s["time"].min() - pd.Timedelta(minutes=5)
+    per = A.alert_periods(s, one_site(), data_start=data_start)
+    assert list(per["open_at_start"]) == [True, False]
+    cfg = from_dict({"coverage_bbox": [-94.0, 45.0, -92.0, 46.0], "coverage_start": "2026-07-14T19:00:00Z",
+                     "coverage_end": "2026-07-14T20:30:00Z"})
+    cov = data_coverage(s, cfg)
+    per = A.alert_periods(s, one_site(), coverage=cov)
+    assert list(per["coverage"]) == ["inside", "partial"]  # the second period's all-clear runs past 20:30Z

@@ -414,3 +414,34 @@ def test_multilinestring_uses_nearest_part():
     r2 = match_outages(strokes, _outages([("O1", 0.0, "S", np.nan, np.nan, np.nan, ())]), single)
     assert c["p_direct"] == pytest.approx(r2.candidates.iloc[0]["p_direct"], abs=1e-4)
     assert r.verdicts.iloc[0]["verdict"] == "direct_strike_likely"
+
+
+def test_strokes_of_one_contact_are_one_fix_and_one_event():
+    # Two strokes of one ground contact 60 m and 90 m east of a north-south line: their positions
+    # are combined into one fix (equal circular errors: the mean, sigma / sqrt(2)), and P(at least
+    # one in the corridor) counts that contact once, not as two independent strikes.
+    from debrief.uncertainty import p_within_corridor, sigma_scale
+
+    lat, lon = 45.45, -93.20
+    a_lat, a_lon = _east_of(lat, lon, 60.0)
+    b_lat, b_lon = _east_of(lat, lon, 90.0)
+    s = _strokes([(-0.05, a_lat, a_lon, -30.0, "CG", 0.1), (0.02, b_lat, b_lon, -30.0, "CG", 0.1)])
+    s["flash_id"], s["ground_contact"], s["stroke_order"], s["likely_ic"] = 1, 1, [1, 2], False
+    lines = pd.DataFrame([_line()])
+    o = _outages([("O1", 0.0, "A", np.nan, np.nan, np.nan, ()), ("O2", 3600.0, "A", np.nan, np.nan, np.nan, ())])
+    cfg = from_dict({})
+    r = match_outages(s, o, lines, cfg, window=(T0 - pd.Timedelta(minutes=5), T0 + pd.Timedelta(minutes=5)))
+    v = r.verdicts.set_index("outage_id")
+    assert v.loc["O2", "verdict"] == "outside_window" and v.loc["O2", "n_candidates"] == 0
+    assert v.loc["O1", "n_candidates"] == 2 and v.loc["O1", "n_contacts"] == 1
+    c = r.candidates
+    assert (c["contact_n_strokes"] == 2).all()
+    # the hand value: the combined fix 75 m east, sigma 0.1 / k50 / sqrt(2) km, corridor of y_min at 30 kA
+    sig = 0.1 / sigma_scale(0.5) / np.sqrt(2.0)
+    w_km = max(c["y_min_m"].iloc[0], c["y_fo_m"].iloc[0]) / 1000.0
+    p_ref = p_within_corridor(np.array([0.075]), np.array([0.0]), np.array([sig**2]), np.array([sig**2]),
+                              np.array([0.0]), np.array([0.0, 0.0]), np.array([-20.0, 20.0]), np.array([w_km]))[0]
+    assert v.loc["O1", "p_any"] == pytest.approx(p_ref, abs=2e-3)
+    assert c["contact_p_within_corridor"].iloc[0] == pytest.approx(v.loc["O1", "p_any"], abs=1e-12)
+    p1, p2 = c["p_within_corridor"].to_numpy()
+    assert v.loc["O1", "p_any"] < 1 - (1 - p1) * (1 - p2)  # not two independent strikes

@@ -370,20 +370,12 @@ def test_missing_values_show_as_a_dash():
 
 
 def test_report_alert_totals_equal_core(demo, core, example_event):
-    import pandas as pd
-
-    from debrief import alerts
-    from debrief.io.sites import read_sites
+    from debrief.analysis import analyse
 
     _, text, _ = demo
     ev = core[0]
-    sites, _ = read_sites(example_event / "sites.csv", time_zone=ev.config.time_zone)
-    crew = alerts.alert_sites(sites).copy()
-    # Sites without their own window are followed over the event's window (the report's rule).
-    crew["start"] = crew["start"].fillna(ev.start)
-    crew["end"] = crew["end"].fillna(ev.end)
-    periods = alerts.alert_periods(ev.strokes, crew, ev.config)
-    totals = alerts.site_totals(periods, crew["name"].tolist())
+    # The report's periods are the event analysis's (the same call as `debrief alerts`).
+    periods, totals, _ = analyse(ev).alerts()
     table = next(t for t in tables(text, "debrief-table") if t and t[0][:3] == ["Site", "Level", "Periods"])
     got = [(r[0], r[1], int(r[2]), round(float(r[3]))) for r in table[1:]]
     want = [(r.site, r.level, int(r.n_periods), round(float(r.total_min))) for r in totals.itertuples()]

@@ -368,3 +368,42 @@ def test_sites_table_bad_rows_and_missing_columns(tmp_path):
     assert sites["start"].iloc[0] == pd.Timestamp("2026-07-14T19:00:00Z")  # CDT = UTC-5
     with pytest.raises(InputError, match="missing column"):
         read_sites(_write(tmp_path, "s2.csv", "name,lat,lon\nA,1,2\n"))
+
+
+def test_sentence_says_what_it_set_aside_and_what_is_near():
+    # A +11.2 kA ground report 48 m from the address is a likely cloud pulse (positive, below
+    # 15 kA): left out, but the sentence names it with its own probability; the nearest counted
+    # ground stroke (3 km NW) and the largest |Ip| within 10 km (62 kA at 8 km) are stated.
+    lat0, lon0 = 45.5, -93.2
+    rows = [at(lat0, lon0, 0.048, 10.0, peak_current_ka=11.2, likely_ic=True, semi_major_km=0.3, semi_minor_km=0.3,
+               time="2026-07-14T19:10:00Z"),
+            at(lat0, lon0, 3.0, 315.0, peak_current_ka=-18.0, time="2026-07-14T19:12:00Z"),
+            at(lat0, lon0, 8.0, 90.0, peak_current_ka=-62.0, time="2026-07-14T19:14:00Z"),
+            at(lat0, lon0, 12.0, 90.0, peak_current_ka=-150.0, time="2026-07-14T19:15:00Z")]
+    res = S.check_site(table(rows), lat0, lon0, 0.5, config=CFG, name="12 Heron Lane")
+    s, sm = res.sentence, res.summary
+    p_aside = stats.ncx2.cdf((0.5 / (0.3 / K50)) ** 2, 2, (0.048 / (0.3 / K50)) ** 2)  # scipy.stats.ncx2
+    assert sm["n_ground_within"] == 0 and sm["n_set_aside_within"] == 1
+    assert sm["set_aside_p_within"] == pytest.approx(p_aside, abs=1e-6)
+    assert s.startswith("No ground stroke was located within 0.5 km of 12 Heron Lane")
+    assert "1 ground report within 0.5 km was set aside as likely cloud pulse" in s
+    assert "+11.2 kA at 0.05 km" in s and S.percent(p_aside) in s
+    assert sm["nearest_ground_km"] == pytest.approx(3.0, abs=1e-6) and sm["max_abs_peak_ka_context"] == 62.0
+    assert "3.00 km to the NW (\u221218.0 kA)" in s and "within 10 km was 62 kA" in s
+
+
+def test_residual_with_no_flash_in_the_ring_is_an_upper_bound():
+    # No ground flash in the 1-10 km ring: the density cannot be estimated, only bounded. The
+    # exact one-sided 95 % Poisson limit after zero events is -ln(0.05) = 2.996 (Garwood 1936;
+    # the "rule of three", Hanley & Lippman-Hand 1983), from scipy.stats.chi2.ppf(0.95, 2) / 2.
+    lat0, lon0 = 45.5, -93.2
+    rows = [at(lat0, lon0, 20.0, 0.0, time="2026-07-14T20:00:00Z")]
+    res = S.check_site(table(rows), lat0, lon0, 1.0, detection_efficiency=0.9, de_source="test value")
+    r = res.residual
+    assert r["n_ground_flashes_in_ring"] == 0 and r["p_unrecorded"] == 0.0
+    mu = stats.chi2.ppf(0.95, 2) / 2.0
+    assert mu == pytest.approx(-math.log(0.05), rel=1e-12)
+    lam = mu / (math.pi * (10**2 - 1)) * math.pi * (1 - 0.9) / 0.9
+    assert r["p_unrecorded_upper"] == pytest.approx(-math.expm1(-lam), rel=1e-12)
+    assert "at most " + S.percent(-math.expm1(-lam)) in res.sentence and "95% upper bound" in res.sentence
+    assert "less than 0.1%" not in res.sentence

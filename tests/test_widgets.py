@@ -562,7 +562,7 @@ def test_notebook_code_loads_the_folder_named_by_debrief_event(tmp_path, monkeyp
 
 # -- site panel -----------------------------------------------------------------------------------
 def test_site_panel_shows_core_result_and_focuses_map(tmp_path):
-    from debrief.sites import check_site
+    from debrief.analysis import analyse
     from debrief.widgets.site_panel import SitePanel
 
     # Constructed: a barn at 45.5 N 93.2 W; one ground stroke about 1.1 km north of it, one 20 km east.
@@ -581,7 +581,9 @@ def test_site_panel_shows_core_result_and_focuses_map(tmp_path):
     panel.pick.value = 0
     assert (panel.lat.value, panel.lon.value, panel.radius.value) == (45.5, -93.2, 2.0)
     res = panel.check()
-    want = check_site(ev.strokes, 45.5, -93.2, 2.0, start=ev.start, end=ev.end, config=cfg, name="Barn")
+    # the panel shows the event analysis's check (the same call as `debrief site`)
+    want = analyse(ev).check_site(45.5, -93.2, 2.0, start=ev.start, end=ev.end, name="Barn")
+    assert want.summary["coverage"] == "inside"
     assert res.sentence == want.sentence and html.escape(res.sentence) in panel.output.value
     assert sorted(st_.selected_stroke_ids) == sorted(ev.strokes.index[ev.strokes["source_row"].isin(want.candidates["source_row"])].tolist())
     assert 0 in st_.selected_stroke_ids and 1 not in st_.selected_stroke_ids  # 20 km away is no candidate
@@ -598,8 +600,8 @@ def test_site_panel_shows_core_result_and_focuses_map(tmp_path):
     panel.pick.value = 1
     assert panel.period.value == "site"
     res = panel.check()
-    want = check_site(ev.strokes, 45.5, -93.2, 2.0, start="2026-07-14T19:01:00Z", end="2026-07-14T19:02:00Z",
-                      config=cfg, name="Shed")
+    want = analyse(ev).check_site(45.5, -93.2, 2.0, start=pd.Timestamp("2026-07-14T19:01:00Z"),
+                                  end=pd.Timestamp("2026-07-14T19:02:00Z"), name="Shed")
     assert res.sentence == want.sentence and res.summary["n_candidates"] == want.summary["n_candidates"]
     assert 0 not in st_.selected_stroke_ids and st_.site["name"] == "Shed"
 

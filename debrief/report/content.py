@@ -159,6 +159,7 @@ class ReportData:
     crew_log: pd.DataFrame | None = None
     problems: list = field(default_factory=list)
     inputs: list = field(default_factory=list)
+    analysis: object = None
 
     @property
     def name(self) -> str:
@@ -175,6 +176,7 @@ def load_report_data(params: dict) -> ReportData:
     Uses :func:`debrief.event.load_event` (the same loader as the CLI and the widgets) and the
     readers of :mod:`debrief.io`; a file that is absent leaves its section out.
     """
+    from ..analysis import analyse
     from ..event import load_event
     from ..timeutil import parse_user_time
 
@@ -184,12 +186,13 @@ def load_report_data(params: dict) -> ReportData:
     tz = cfg.time_zone
     start = parse_user_time(params["start"], tz, what="start") if params.get("start") else event.start
     end = parse_user_time(params["end"], tz, what="end") if params.get("end") else event.end
-    strokes, flashes = event.window(start, end)
+    analysis = analyse(event, start, end)
+    strokes, flashes = analysis.flash_strokes, analysis.flashes
     sites_path = Path(params["sites"]) if params.get("sites") else cfg.path("sites")
     data = ReportData(params=params, event=event, start=start, end=end, strokes=strokes, flashes=flashes, tz=tz,
                       sites=event.sites, sites_path=sites_path if event.sites is not None else None,
                       lines=event.lines, outages=event.outages, crew_log=event.crew_log,
-                      problems=list(event.problems), inputs=list(event.inputs))
+                      problems=list(event.problems), inputs=list(event.inputs), analysis=analysis)
     return data
 
 
@@ -654,15 +657,15 @@ def outages_html(result) -> str:
         return note("The outage log has no rows.")
     v["time"] = [_iso(t) if pd.notna(t) else "" for t in v["time"]]
     v["best_stroke_time"] = [time_ms(t) for t in v.get("best_stroke_time", [pd.NaT] * len(v))]
-    cols = [c for c in ["outage_id", "line_id", "time", "verdict", "n_candidates", "best_stroke_time",
+    cols = [c for c in ["outage_id", "line_id", "time", "verdict", "coverage", "n_candidates", "n_contacts", "best_stroke_time",
                         "best_peak_current_ka", "best_dt_s", "best_distance_m", "best_p_within_corridor",
                         "best_p_direct", "best_p_induced_fo", "current_sensitive"] if c in v]
-    v["verdict"] = [str(x).replace("_", " ") for x in v["verdict"]]
     table = html_table(v, columns=cols, headers={
         "outage_id": "Outage", "line_id": "Line", "time": "Time (UTC)", "verdict": "Verdict",
+        "coverage": "Data coverage", "n_contacts": "Ground contacts",
         "n_candidates": "Candi\u00addates", "best_stroke_time": "Best stroke (UTC)", "best_peak_current_ka": "Ip, kA",
-        "best_dt_s": "dt, s", "best_distance_m": "To line, m", "best_p_within_corridor": "P(corridor)",
-        "best_p_direct": "P(direct)", "best_p_induced_fo": "P(induced)", "current_sensitive": "Changes at ±30 % Ip"},
+        "best_dt_s": "dt, s", "best_distance_m": "To line, m", "best_p_within_corridor": "P(corridor), contact",
+        "best_p_direct": "P(direct), contact", "best_p_induced_fo": "P(induced), contact", "current_sensitive": "Changes at ±30 % Ip"},
         formats={"best_peak_current_ka": ".1f", "best_dt_s": ".2f", "best_distance_m": ".0f",
                  "best_p_within_corridor": ".3f", "best_p_direct": ".3f", "best_p_induced_fo": ".3f"},
         caption="Verdict per outage", css_class="debrief-table debrief-outages")
@@ -670,7 +673,7 @@ def outages_html(result) -> str:
         table += "".join(f'<p class="debrief-sentence"><strong>{esc(o)} ({esc(ln)}):</strong> {esc(r)}</p>'
                          for o, ln, r in zip(v["outage_id"], v["line_id"], v["reasons"]) if isinstance(r, str) and r)
     counts = v["verdict"].value_counts()
-    legend = pd.DataFrame([{"verdict": k.replace("_", " "), "outages": int(counts.get(k.replace("_", " "), 0)), "rule": r, "meaning": m}
+    legend = pd.DataFrame([{"verdict": k, "outages": int(counts.get(k, 0)), "rule": r, "meaning": m}
                            for k, (r, m) in om.VERDICTS.items()])
     leg = html_table(legend, headers={"verdict": "Verdict", "outages": "Outages", "rule": "Rule", "meaning": "Meaning"},
                      caption="Verdicts")
@@ -679,34 +682,23 @@ def outages_html(result) -> str:
 
 
 def site_results(data: ReportData):
-    """Run :func:`debrief.sites.check_sites` for the sites with a radius.
+    """The claim sites' checks from the report's analysis (:meth:`debrief.analysis.Analysis.check_sites`).
 
-    Sites with their own ``start``/``end`` are checked over that window (on every stroke of the
-    file); the others over the report's analysis window.
+    The same call and window as ``debrief sites``: a site's own ``start``/``end`` is its claim
+    period, searched where it meets the analysis window, and its coverage is stated.
 
     Returns
     -------
     summary : DataFrame
-        One row per site (``SITES_COLUMNS`` of :mod:`debrief.sites`).
+        One row per claim site (``SITES_COLUMNS`` of :mod:`debrief.sites`).
     per_site : list of (site row, candidates DataFrame, parcel outline or None)
     """
-    from .. import sites as site_check
-
-    sites = data.sites.copy() if data.sites is not None else pd.DataFrame()
-    if not len(sites) or "radius_km" not in sites:
-        return pd.DataFrame(columns=list(site_check.SITES_COLUMNS)), []
-    sites = sites[np.isfinite(sites["radius_km"].to_numpy(dtype=float))].reset_index(drop=True)
-    if not len(sites):
-        return pd.DataFrame(columns=list(site_check.SITES_COLUMNS)), []
-    for col, default in (("start", data.start), ("end", data.end)):
-        if col not in sites:
-            sites[col] = pd.NaT
-        sites[col] = pd.to_datetime(sites[col], utc=True).astype("datetime64[ns, UTC]").fillna(default)
-    summary, cand = site_check.check_sites(data.event.strokes, sites, data.config, return_candidates=True)
+    summary, cand = data.analysis.site_results
     per_site = []
-    parcels = sites["parcel_file"].fillna("").astype(str).tolist() if "parcel_file" in sites else [""] * len(sites)
+    claims = data.analysis.claim_sites()
+    parcels = claims["parcel_file"].fillna("").astype(str).tolist() if "parcel_file" in claims else [""] * len(claims)
     for i, row in summary.iterrows():
-        c = cand[cand["site"].astype(str).to_numpy() == str(row["name"])]
+        c = cand[cand["site"].astype(str).to_numpy() == str(row["name"])] if len(cand) else cand
         parcel = None
         if i < len(parcels) and parcels[i]:
             from ..io.sites import read_parcel
@@ -735,12 +727,13 @@ def sites_summary_html(summary: pd.DataFrame) -> str:
     for c in ("max_p_within", "p_any_within", "p_unrecorded"):
         if c in s:
             s[c] = [_pct(v) if pd.notna(v) else "–" for v in s[c]]
-    table = html_table(s, columns=[c for c in ["name", "radius_km", "start", "end", "n_ground_candidates",
+    table = html_table(s, columns=[c for c in ["name", "radius_km", "start", "end", "coverage", "n_ground_candidates",
                                                "n_ground_within", "nearest_km", "max_p_within", "p_any_within",
                                                "p_unrecorded"] if c in s],
                        headers={"name": "Site", "radius_km": "Radius, km", "start": "From (UTC)", "end": "To (UTC)",
+                                "coverage": "Data coverage",
                                 "n_ground_candidates": "Ground candidates", "n_ground_within": "Reported within",
-                                "nearest_km": "Nearest, km", "max_p_within": "Highest P(within)",
+                                "nearest_km": "Nearest, km", "max_p_within": "Highest P(within), one contact",
                                 "p_any_within": "P(any ground contact within)",
                                 "p_unrecorded": "P(unrecorded flash within)"},
                        formats={"radius_km": "g", "nearest_km": ".2f"}, caption="Sites checked",
@@ -769,23 +762,13 @@ def site_candidates_html(candidates: pd.DataFrame, max_rows: int = 25) -> str:
 
 
 def alert_results(data: ReportData):
-    """Crew alert periods from :func:`debrief.alerts.alert_periods`, or None when not available.
+    """Crew alert periods from the report's analysis (:meth:`debrief.analysis.Analysis.alerts`), or None.
 
-    Crew sites are those with a ``stop_km`` (:func:`debrief.alerts.alert_sites`); a site without
-    its own ``start``/``end`` is followed over the report's analysis window.
+    The same call and window as ``debrief alerts``: (periods, totals, crew-log comparison or None).
     """
-    if data.sites is None or not len(data.sites) or not _has_module("debrief.alerts"):
+    if data.sites is None or not len(data.sites):
         return None
-    from .. import alerts
-
-    crew = alerts.alert_sites(data.sites).copy()
-    for col, default in (("start", data.start), ("end", data.end)):
-        if col not in crew:
-            crew[col] = pd.NaT
-        crew[col] = pd.to_datetime(crew[col], utc=True).astype("datetime64[ns, UTC]").fillna(default)
-    periods = alerts.alert_periods(data.event.strokes, crew, data.config)
-    totals = alerts.site_totals(periods, crew["name"].astype(str).tolist())
-    return periods, totals
+    return data.analysis.alerts()
 
 
 def alerts_html(results, data: ReportData) -> str:
@@ -794,7 +777,7 @@ def alerts_html(results, data: ReportData) -> str:
         return note("Alert periods are not part of this report (no sites, or the alert module is not installed).")
     from .. import alerts, figures
 
-    periods, totals = results
+    periods, totals, comparison = results
     a = data.config["alerts"]
     intro = note(f"A period starts with a ground stroke within a site's stop radius (default {a['stop_km']:g} km) "
                  f"and ends {a['all_clear_min']:g} min after the last such stroke (the all-clear).")
@@ -815,22 +798,22 @@ def alerts_html(results, data: ReportData) -> str:
     table = html_table(shown, columns=list(alerts.PERIOD_COLUMNS),
                        headers={"site": "Site", "level": "Level", "start": "Start (UTC)", "last_stroke": "Last stroke (UTC)",
                                 "all_clear": "All-clear (UTC)", "duration_min": "Duration, min", "n_strokes": "Strokes",
-                                "nearest_km": "Nearest, km", "open_at_end": "Open at end of data"},
+                                "nearest_km": "Nearest, km", "open_at_end": "Open at end of data",
+                                "open_at_start": "May have begun before the data", "coverage": "Data coverage",
+                                "coverage_note": "Coverage note"},
                      formats={"duration_min": ".0f", "nearest_km": ".2f"}, caption="Alert periods", max_rows=300)
-    crew = crew_log_html(periods, data)
+    crew = crew_log_html(comparison, data)
     return (intro + caution + figure_html(svg, alt="Alert periods per crew site",
                                           caption="Alert periods per crew site, start to all-clear (UTC): stop radius dark, warning radius light.")
             + tot + table + crew)
 
 
-def crew_log_html(periods: pd.DataFrame, data: ReportData) -> str:
-    """The crew log beside the stop periods (:func:`debrief.alerts.compare_crew_log`)."""
-    if data.crew_log is None:
+def crew_log_html(comparison: pd.DataFrame | None, data: ReportData) -> str:
+    """The crew log beside the stop periods (the analysis's :func:`debrief.alerts.compare_crew_log`)."""
+    if data.crew_log is None or comparison is None:
         return ""
-    from .. import alerts
-
     log = data.crew_log.copy()
-    found = alerts.compare_crew_log(periods, log, sites=data.sites["name"].astype(str).tolist())
+    found = comparison.copy()
     for frame, cols in ((log, ("stopped", "resumed")), (found, ("start", "end"))):
         for c in cols:
             if c in frame:
@@ -878,7 +861,7 @@ def outage_figures_html(result, data: ReportData, max_outages: int = 12) -> str:
                 orow = o.iloc[0]
                 if {"fault_latitude", "fault_longitude"} <= set(o.columns):
                     fault = (float(orow["fault_latitude"]), float(orow["fault_longitude"]))
-        verdict = str(verdicts.loc[oid, "verdict"]).replace("_", " ") if oid in verdicts.index else ""
+        verdict = str(verdicts.loc[oid, "verdict"]) if oid in verdicts.index else ""
         title = f"{oid} on {line_id}: {verdict}"
         svg = figures.to_svg(figures.outage_map(geom, g, fault_deg=fault, title=title))
         cells = [figure_html(svg, alt=f"Map of outage {oid}",
@@ -900,3 +883,17 @@ def outage_figures_html(result, data: ReportData, max_outages: int = 12) -> str:
                    'align-items:flex-start">'
                    + "".join(f'<div style="flex:1 1 24rem;min-width:0">{cell}</div>' for cell in cells) + "</div>")
     return "".join(out)
+
+
+def window_coverage_html(data: ReportData) -> str:
+    """The analysis window, the rule applied to it, and the data's coverage, for the record."""
+    from ..analysis import WINDOW_RULE
+    from ..contacts import INDEPENDENCE_NOTE
+
+    a = data.analysis
+    rows = [("Analysis window (UTC)", f"{_iso(a.start)} to {_iso(a.end)}"),
+            ("Window rule", WINDOW_RULE),
+            ("Data coverage", a.coverage.describe()),
+            ("Coverage source", a.coverage.source),
+            ("Ground contacts", INDEPENDENCE_NOTE)]
+    return kv_table(rows)

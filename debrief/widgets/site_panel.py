@@ -1,4 +1,7 @@
-"""Site check panel: pick or type a site and radius, see what :func:`debrief.sites.check_site` says.
+"""Site check panel: pick or type a site and radius, see what the event's analysis says.
+
+The check is :meth:`debrief.analysis.Analysis.check_site` (the same call as ``debrief site``):
+the event's window and data coverage apply, and the chosen period is the claim period.
 
 The result (summary, the plain sentence and the cautions) is the core function's; the panel only
 shows it, puts the site in focus (the map zooms to it with its radius ring) and selects the
@@ -113,12 +116,12 @@ class SitePanel(W.VBox):
         return self.state.window
 
     def check(self):
-        """Run :func:`debrief.sites.check_site` for the fields' site and show the result."""
-        from ..sites import StrokeIndex, check_site
+        """Run the analysis's site check for the fields' site and show the result."""
+        from ..analysis import analyse
 
         ev = self.state.event
-        if self._index is None:  # built once, reused by every check (sites.StrokeIndex)
-            self._index = StrokeIndex(ev.strokes, ev.config)
+        if self._index is None:  # the event's one analysis (its indexes are built once and reused)
+            self._index = analyse(ev)
         start, end = self.period_bounds()
         name = self.pick.label if self.pick.value is not None else f"{self.lat.value:.4f}, {self.lon.value:.4f}"
         try:
@@ -128,8 +131,8 @@ class SitePanel(W.VBox):
                 from ..io.sites import read_parcel
 
                 parcel = read_parcel(r["parcel_file"])
-            res = check_site(ev.strokes, float(self.lat.value), float(self.lon.value), float(self.radius.value),
-                             start=start, end=end, config=ev.config, name=name, index=self._index, parcel=parcel)
+            res = self._index.check_site(float(self.lat.value), float(self.lon.value), float(self.radius.value),
+                                         start=start, end=end, parcel=parcel, name=name)
         except InputError as e:
             self.result = None
             self.output.value = f'<p style="color:#b00">{html.escape(str(e))}</p>'
