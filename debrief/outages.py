@@ -179,7 +179,10 @@ def _line_geo(geometry) -> _LineGeo:
 
 def _in_box(lat_deg, lon_deg, lon_lo, lat_lo, lon_hi, lat_hi, dlat, dlon):
     """Points inside lon/lat boxes widened by (dlat, dlon), longitudes compared modulo 360."""
-    lon = lon_near_deg(lon_deg, 0.5 * (np.asarray(lon_lo) + np.asarray(lon_hi)))
+    lon = lon_deg
+    if np.any((np.asarray(lon_lo) - dlon < -180.0) | (np.asarray(lon_hi) + dlon > 180.0)):
+        # only boxes reaching past 180 need the shift (it costs a pass over the strokes)
+        lon = lon_near_deg(lon_deg, 0.5 * (np.asarray(lon_lo) + np.asarray(lon_hi)))
     return (lat_deg >= lat_lo - dlat) & (lat_deg <= lat_hi + dlat) & (lon >= lon_lo - dlon) & (lon <= lon_hi + dlon)
 
 
@@ -771,6 +774,8 @@ def _polygon_lonlat(geo: _LineGeo, poly) -> dict:
             pieces.append(shapely.transform(cut, lambda xy, s=shift: xy + np.array([s, 0.0])))
     polys = [q for piece in pieces for q in shapely.get_parts(piece) if isinstance(q, shapely.Polygon) and not q.is_empty]
     polys = [shapely.transform(shapely.geometry.polygon.orient(q, 1.0), lambda xy: np.round(xy, 7)) for q in polys]
+    # a sliver beyond 180 narrower than the rounding (an edge just touching it) is dropped
+    polys = [q for q in polys if q.area > 0.0] or polys[:1]
     return shapely.geometry.mapping(polys[0] if len(polys) == 1 else shapely.MultiPolygon(polys))
 
 
