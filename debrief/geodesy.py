@@ -89,3 +89,20 @@ def centre_of(lat_deg, lon_deg) -> tuple[float, float]:
     lon = np.radians(np.asarray(lon_deg, dtype=float))
     lon0 = np.degrees(np.arctan2(np.nanmean(np.sin(lon)), np.nanmean(np.cos(lon))))
     return float(np.nanmean(lat)), float(lon0)
+
+
+def lon_near_deg(lon_deg, ref_deg):
+    """Longitudes shifted by whole turns to lie within 180 degrees of `ref_deg` (vectorised).
+
+    ``lon + 360 k`` with k the nearest integer to ``(ref - lon) / 360``: a line or box that
+    crosses the antimeridian becomes continuous about `ref_deg` (values may leave [-180, 180]).
+    Longitudes already within 180 degrees of `ref_deg` come back unchanged, bit for bit.
+    """
+    lon = np.asarray(lon_deg, dtype=float)
+    return lon + 360.0 * np.round((np.asarray(ref_deg, dtype=float) - lon) / 360.0)
+
+
+def normalise_lon_deg(lon_deg):
+    """Longitudes in [-180, 180) (vectorised); values already there come back unchanged."""
+    lon = np.asarray(lon_deg, dtype=float)
+    return np.where((lon >= -180.0) & (lon < 180.0), lon, np.mod(lon + 180.0, 360.0) - 180.0)

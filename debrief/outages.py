@@ -56,7 +56,7 @@ import shapely.geometry
 
 from . import lines as phys
 from .config import from_dict
-from .geodesy import LocalPlane, inverse_km
+from .geodesy import LocalPlane, inverse_km, lon_near_deg, normalise_lon_deg
 from .timeutil import iso_utc
 
 #: Verdict code -> (rule, meaning). One table, used by docs, reports and the CLI.
@@ -162,24 +162,39 @@ class _LineGeo:
     plane: LocalPlane
     parts: list  # shapely LineStrings in the plane, km
     whole: object  # shapely (Multi)LineString in the plane, km
-    bounds_deg: tuple  # lon_min, lat_min, lon_max, lat_max
+    bounds_deg: tuple  # lon_min, lat_min, lon_max, lat_max, continuous across 180 (line_box_deg)
 
 
 def _line_geo(geometry) -> _LineGeo:
-    from .io.lines import line_points_lonlat
+    """The line in one plane about the middle of its extent (continuous across 180 degrees).
 
-    pts = line_points_lonlat(geometry)
-    allp = np.vstack(pts)
+    Parts cut at the antimeridian are joined into one (:func:`debrief.io.lines.connected_parts_lonlat`);
+    the plane takes longitudes modulo 360, so a segment across 180 is the short way.
+    """
+    from .io.lines import connected_parts_lonlat, line_box_deg
+
+    pts = connected_parts_lonlat(geometry)
+    box = line_box_deg(geometry)
     # Centre the plane on the middle of the line's extent: distances there are nearly exact.
-    lon0 = 0.5 * (allp[:, 0].min() + allp[:, 0].max())
-    lat0 = 0.5 * (allp[:, 1].min() + allp[:, 1].max())
+    # (For a line that does not cross 180 degrees this is the middle of its lon/lat bounds.)
+    lon0 = float(normalise_lon_deg(0.5 * (box[0] + box[2])))
+    lat0 = 0.5 * (box[1] + box[3])
     plane = LocalPlane(lat0, lon0)
     parts = []
     for p in pts:
         x, y = plane.to_xy_km(p[:, 1], p[:, 0])
         parts.append(shapely.LineString(np.column_stack([x, y])))
     whole = parts[0] if len(parts) == 1 else shapely.MultiLineString(parts)
-    return _LineGeo(plane, parts, whole, tuple(shapely.bounds(geometry)))
+    return _LineGeo(plane, parts, whole, box)
+
+
+def _in_box(lat_deg, lon_deg, lon_lo, lat_lo, lon_hi, lat_hi, dlat, dlon):
+    """Points inside lon/lat boxes widened by (dlat, dlon), longitudes compared modulo 360."""
+    lon = lon_deg
+    if np.any((np.asarray(lon_lo) - dlon < -180.0) | (np.asarray(lon_hi) + dlon > 180.0)):
+        # only boxes reaching past 180 need the shift (it costs a pass over the strokes)
+        lon = lon_near_deg(lon_deg, 0.5 * (np.asarray(lon_lo) + np.asarray(lon_hi)))
+    return (lat_deg >= lat_lo - dlat) & (lat_deg <= lat_hi + dlat) & (lon >= lon_lo - dlon) & (lon <= lon_hi + dlon)
 
 
 def _bbox_margin_deg(lat_deg, km):
@@ -434,9 +449,12 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
     if len(og) and len(t_ns):
         po, ps_sorted = _candidate_pairs(t_ns, og, lc)
         ps = order[ps_sorted]
-        # Spatial prefilter in degrees: the line's box or the fault point, widened by search_km.
+        # Spatial prefilter in degrees: the line's box or the fault point, widened by search_km
+        # (longitudes modulo 360, boxes continuous across 180).
+        from .io.lines import line_box_deg
+
         li = np.array([line_pos[lid] for lid in og["line_id"]], dtype=np.int64)
-        b = np.array([shapely.bounds(g) for g in lines["geometry"]]).reshape(-1, 4)
+        b = np.array([line_box_deg(g) for g in lines["geometry"]]).reshape(-1, 4)
         fl_lat = og["fault_latitude"].to_numpy(float)
         fl_lon = og["fault_longitude"].to_numpy(float)
         has_fault = np.isfinite(fl_lat)
@@ -446,8 +464,7 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
         lat_hi = np.where(has_fault, fl_lat, b[li, 3])
         dlat, dlon = _bbox_margin_deg(np.maximum(np.abs(lat_lo), np.abs(lat_hi)), search_km)
         slat, slon = lat_all[ps], lon_all[ps]
-        keep = ((slat >= lat_lo[po] - dlat[po]) & (slat <= lat_hi[po] + dlat[po])
-                & (slon >= lon_lo[po] - dlon[po]) & (slon <= lon_hi[po] + dlon[po]))
+        keep = _in_box(slat, slon, lon_lo[po], lat_lo[po], lon_hi[po], lat_hi[po], dlat[po], dlon[po])
         po, ps = po[keep], ps[keep]
         cand = _evaluate_pairs(po, ps, og, li, lines, strokes, t_all, config, lc, has_fault)
         cand = _contact_probabilities(cand, strokes, lines, config, lc)
@@ -812,10 +829,10 @@ def line_exposure(strokes: pd.DataFrame, lines: pd.DataFrame, config=None) -> pd
     ng = lc["ground_flash_density"]
     rows = []
     for _, line in lines.iterrows():
-        lon_lo, lat_lo, lon_hi, lat_hi = shapely.bounds(line["geometry"])
-        dlat, dlon = _bbox_margin_deg(max(abs(lat_lo), abs(lat_hi)), lc["search_km"])
-        m = np.flatnonzero((lat >= lat_lo - dlat) & (lat <= lat_hi + dlat) & (lon >= lon_lo - dlon) & (lon <= lon_hi + dlon))
         geo = _line_geo(line["geometry"])
+        lon_lo, lat_lo, lon_hi, lat_hi = geo.bounds_deg
+        dlat, dlon = _bbox_margin_deg(max(abs(lat_lo), abs(lat_hi)), lc["search_km"])
+        m = np.flatnonzero(_in_box(lat, lon, lon_lo, lat_lo, lon_hi, lat_hi, dlat, dlon))
         x, y = geo.plane.to_xy_km(lat[m], lon[m])
         d = shapely.distance(geo.whole, shapely.points(np.atleast_1d(x), np.atleast_1d(y))) if m.size else np.zeros(0)
         m = m[d <= lc["search_km"]]
@@ -903,11 +920,31 @@ def _num(v):
 
 
 def _polygon_lonlat(geo: _LineGeo, poly) -> dict:
-    """GeoJSON geometry of a polygon in the line's plane (km), back in lon/lat rounded to 1e-7 deg."""
+    """GeoJSON geometry of a polygon in the line's plane (km), back in lon/lat rounded to 1e-7 deg.
+
+    Split at the antimeridian as RFC 7946 section 3.1.9 asks: the polygon is taken back with
+    longitudes continuous about the plane's centre, cut at +-180 and the pieces beyond shifted by
+    360 degrees, so every longitude is in [-180, 180] and a corridor across 180 is a MultiPolygon
+    with parts on each side. Exterior rings counter-clockwise (RFC 7946 section 3.1.6). Not for
+    polygons around a pole.
+    """
     def tr(xy):
         lat, lon = geo.plane.to_latlon(xy[:, 0], xy[:, 1])
-        return np.column_stack([np.round(lon, 7), np.round(lat, 7)])
-    return shapely.geometry.mapping(shapely.transform(poly, tr))
+        return np.column_stack([lon_near_deg(lon, geo.plane.lon0_deg), lat])
+
+    g = shapely.transform(poly, tr)
+    lon_lo, _, lon_hi, _ = g.bounds
+    pieces = [g]
+    if lon_lo < -180.0 or lon_hi > 180.0:
+        pieces = []
+        for shift in (-360.0, 0.0, 360.0):  # the piece in [-180 - shift, 180 - shift], moved by shift
+            cut = shapely.intersection(g, shapely.box(-180.0 - shift, -90.0, 180.0 - shift, 90.0))
+            pieces.append(shapely.transform(cut, lambda xy, s=shift: xy + np.array([s, 0.0])))
+    polys = [q for piece in pieces for q in shapely.get_parts(piece) if isinstance(q, shapely.Polygon) and not q.is_empty]
+    polys = [shapely.transform(shapely.geometry.polygon.orient(q, 1.0), lambda xy: np.round(xy, 7)) for q in polys]
+    # a sliver beyond 180 narrower than the rounding (an edge just touching it) is dropped
+    polys = [q for q in polys if q.area > 0.0] or polys[:1]
+    return shapely.geometry.mapping(polys[0] if len(polys) == 1 else shapely.MultiPolygon(polys))
 
 
 def _corridor_feature(geo: _LineGeo, half_width_km: float) -> dict:
@@ -920,7 +957,10 @@ def corridor_geojson(lines: pd.DataFrame, half_width_km: float) -> dict:
 
     The corridor is the buffer of the line (round ends, 16 segments per quarter circle) in the
     line's local azimuthal equidistant plane (:class:`debrief.geodesy.LocalPlane` about the middle
-    of its extent), taken back to longitude/latitude and rounded to 1e-7 degrees (about 1 cm).
+    of its extent, parts cut at the antimeridian joined), taken back to longitude/latitude and
+    rounded to 1e-7 degrees (about 1 cm). A corridor across 180 degrees is split there into a
+    MultiPolygon with longitudes in [-180, 180] (RFC 7946 section 3.1.9); exterior rings run
+    counter-clockwise.
 
     Parameters
     ----------

@@ -541,3 +541,51 @@ def test_reach_bound_holds():
     t = float(U.reach_km(sxx, syy, sxy, 1e-6))
     s = math.sqrt(float(sxx))
     assert stats.chi2.sf((t / s) ** 2, 2) == pytest.approx(1e-6, rel=1e-9)
+
+
+@pytest.mark.parametrize("kink_m", [0.001, 0.01, 0.03, 0.3])
+@pytest.mark.parametrize("half_length_km", [0.5, 10.0])
+def test_corridor_at_nearly_straight_vertex_matches_polygon_reference(kink_m, half_length_km):
+    # A straight line with its middle vertex raised by 1 mm ... 30 cm (turns of 2e-7 to 1.2e-3
+    # rad). Against the buffer-polygon method (Owen's T triangles, Owen 1956): for strokes whose
+    # error keeps 7 sd clear of the round ends, its only approximation is the outer join, an arc
+    # of the turn angle whose inscribed chord misses a sliver < w * turn^2 / 8 <= 1e-7 m deep,
+    # so it is exact to ~1e-10 there. The boundary integral used to keep the inner join arc
+    # (inside by w * turn^2 / 8, below its distance tolerance) and was off by up to 1.4e-4.
+    L, d = half_length_km, kink_m / 1000.0
+    lx, ly = np.array([-L, 0.0, L]), np.array([0.0, d, 0.0])
+    rng = np.random.default_rng(int(kink_m * 1e4) + int(L))
+    n = 1500
+    a = 10 ** rng.uniform(np.log10(0.05), np.log10(2.0), n)
+    sxx, syy, sxy = U.ellipse_covariance(a, a / 10 ** rng.uniform(0, 1, n), rng.uniform(0, 180, n), 0.5)
+    w = 10 ** rng.uniform(-2, np.log10(0.5), n)
+    x, y = rng.normal(0, 0.5, n) * (a + w), rng.normal(0, 1, n) * (a + w)
+    s1, _, _ = U.principal_axes(sxx, syy, sxy)
+    use = (L - np.abs(x)) > w + 7 * s1
+    got, paths = U.p_within_corridor(x[use], y[use], sxx[use], syy[use], sxy[use], lx, ly, w[use], return_paths=True)
+    ref = U._p_within_corridor_polygon(x[use], y[use], sxx[use], syy[use], sxy[use], lx, ly, w[use])
+    assert np.count_nonzero(paths == 3) > 50
+    assert np.abs(got - ref).max() < 3e-8
+
+
+def test_corridor_merges_vertices_within_a_micrometre():
+    # A vertex inserted on the line, or 1e-4 mm off it, is merged (U._CORRIDOR_MERGE_KM = 1
+    # micrometre): the result equals the straight line's to 1e-9. One 1 mm off is kept; against
+    # the straight line it then differs by the displacement's own effect, at most
+    # 0.4 * d / s_n (d the displacement, s_n the error sd across the line; the 1-D normal density
+    # is at most 1 / sqrt(2 pi) = 0.4, common practice), and here by more than 1e-9.
+    rng = np.random.default_rng(5)
+    n = 400
+    a = 10 ** rng.uniform(np.log10(0.05), 0.0, n)
+    sxx, syy, sxy = U.ellipse_covariance(a, a / 2, rng.uniform(0, 180, n), 0.5)
+    w = 10 ** rng.uniform(-2, np.log10(0.5), n)
+    x, y = rng.uniform(-1.5, 1.5, n), rng.normal(0, 1, n) * (a + w)
+    straight = U.p_within_corridor(x, y, sxx, syy, sxy, [-2.0, 2.0], [0.0, 0.0], w)
+    for d_km in (0.0, 1e-10):
+        got = U.p_within_corridor(x, y, sxx, syy, sxy, [-2.0, 0.3, 2.0], [0.0, d_km, 0.0], w)
+        assert np.abs(got - straight).max() < 1e-9
+    d_km = 1e-6
+    got = U.p_within_corridor(x, y, sxx, syy, sxy, [-2.0, 0.3, 2.0], [0.0, d_km, 0.0], w)
+    _, s2, _ = U.principal_axes(sxx, syy, sxy)
+    diff = np.abs(got - straight)
+    assert np.all(diff <= 0.4 * d_km / s2 + 1e-8) and diff.max() > 1e-9

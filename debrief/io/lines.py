@@ -22,7 +22,7 @@ import pandas as pd
 from shapely.geometry import LineString, MultiLineString
 
 from ..errors import InputError
-from ..geodesy import WGS84
+from ..geodesy import WGS84, centre_of, lon_near_deg
 from ..timeutil import read_typed_time, zone
 from .problems import Problem
 
@@ -80,9 +80,19 @@ def read_lines(path, *, config=None):
     Returns
     -------
     lines : DataFrame
-        Columns ``LINE_COLUMNS``; ``geometry`` holds shapely lines in (lon, lat) degrees,
-        ``length_km`` the geodesic length.
+        Columns ``LINE_COLUMNS``; ``geometry`` holds shapely lines in (lon, lat) degrees, as
+        given, ``length_km`` the geodesic length (each segment the shorter geodesic between its
+        ends).
     problems : list of Problem
+
+    Notes
+    -----
+    Lines across the antimeridian: a MultiLineString cut at longitude 180 (RFC 7946 section
+    3.1.9) is read as one line, its parts joined where they meet at +180/-180
+    (:func:`connected_parts_lonlat`). A LineString whose consecutive positions differ by more
+    than 180 degrees of longitude (e.g. 179.9 then -179.9) is taken the short way across 180
+    degrees, as a segment of a power line always is, and kept with a ``note`` in the problems
+    naming the positions; to mean the long way, add vertices.
     """
     p = Path(path)
     name = p.name
@@ -177,6 +187,13 @@ def read_lines(path, *, config=None):
         if not isinstance(shielded, bool):
             problems.append(Problem(name, where, fid, f"'shielded' must be true or false, got {shielded!r}"))
             continue
+        for k, part in enumerate(line_points_lonlat(shape), start=1):
+            for j in antimeridian_jumps(part):
+                in_part = f"part {k}, " if gtype == "MultiLineString" else ""
+                problems.append(Problem(name, where, fid, (
+                    f"{in_part}positions {j + 1} and {j + 2} ({part[j, 0]:g} and {part[j + 1, 0]:g} degrees longitude) "
+                    "cross the antimeridian without a cut at 180 (RFC 7946 section 3.1.9); taken as the short way "
+                    "across 180 degrees"), "note"))
         seen.add(fid)
         rows.append({
             "line_id": fid, "name": str(props.get("name") or fid), "height_m": vals["height_m"],
@@ -342,4 +359,71 @@ def line_points_lonlat(geometry) -> list[np.ndarray]:
     if isinstance(geometry, MultiLineString):
         return [np.asarray(g.coords)[:, :2] for g in geometry.geoms]
     return [np.asarray(geometry.coords)[:, :2]]
+
+
+#: Two part ends on the antimeridian within this latitude difference are one point, degrees
+#: (11 cm: the resolution of coordinates written with 6 decimals).
+ANTIMERIDIAN_JOIN_DEG = 1e-6
+
+
+def _on_antimeridian(pt) -> bool:
+    return abs(float(pt[0])) >= 180.0 - ANTIMERIDIAN_JOIN_DEG
+
+
+def connected_parts_lonlat(geometry) -> list[np.ndarray]:
+    """The parts of a line as (n, 2) arrays of (lon, lat), parts cut at the antimeridian joined.
+
+    A line crossing 180 degrees should be cut there into a MultiLineString (RFC 7946 section
+    3.1.9): two parts that end at longitude +180 and -180 (or the same sign) on the same latitude
+    (within :data:`ANTIMERIDIAN_JOIN_DEG`) are one point of one line, so they are joined there
+    (at the mean latitude). Other parts stay separate. Longitudes are returned as given, so a
+    joined part steps by 360 degrees at the join: project it (e.g. with
+    :class:`debrief.geodesy.LocalPlane`, which takes longitudes modulo 360) before measuring.
+
+    A single part whose consecutive vertices differ by more than 180 degrees of longitude is
+    taken the short way across 180 by the same projection (:func:`antimeridian_jumps` finds
+    them; :func:`read_lines` notes them).
+    """
+    parts = [p.copy() for p in line_points_lonlat(geometry)]
+    joined = True
+    while joined and len(parts) > 1:
+        joined = False
+        for i in range(len(parts)):
+            for j in range(i + 1, len(parts)):
+                a, b = parts[i], parts[j]
+                for ra, rb in ((False, False), (False, True), (True, False), (True, True)):
+                    aa = a[::-1] if ra else a  # candidate: aa's last point meets bb's first
+                    bb = b[::-1] if rb else b
+                    if (_on_antimeridian(aa[-1]) and _on_antimeridian(bb[0])
+                            and abs(aa[-1, 1] - bb[0, 1]) <= ANTIMERIDIAN_JOIN_DEG):
+                        mid = np.array([[aa[-1, 0], 0.5 * (aa[-1, 1] + bb[0, 1])]])
+                        parts[i] = np.vstack([aa[:-1], mid, bb[1:]])
+                        del parts[j]
+                        joined = True
+                        break
+                if joined:
+                    break
+            if joined:
+                break
+    return parts
+
+
+def antimeridian_jumps(points_lonlat) -> np.ndarray:
+    """Indices k (0-based) where vertex k+1 is more than 180 degrees of longitude from vertex k."""
+    lon = np.asarray(points_lonlat, dtype=float)[:, 0]
+    return np.flatnonzero(np.abs(np.diff(lon)) > 180.0)
+
+
+def line_box_deg(geometry) -> tuple[float, float, float, float]:
+    """(lon_min, lat_min, lon_max, lat_max) of a line, continuous across the antimeridian.
+
+    Longitudes are taken within 180 degrees of the line's mean longitude
+    (:func:`debrief.geodesy.centre_of`), so the box of a line crossing 180 degrees is narrow and
+    may reach beyond [-180, 180] (e.g. 179.9 to 180.1); for any other line it is the plain
+    lon/lat bounds. Compare a longitude with it after :func:`debrief.geodesy.lon_near_deg`.
+    """
+    allp = np.vstack(line_points_lonlat(geometry))
+    lon0 = centre_of(allp[:, 1], allp[:, 0])[1]
+    lon = lon_near_deg(allp[:, 0], lon0)
+    return float(lon.min()), float(allp[:, 1].min()), float(lon.max()), float(allp[:, 1].max())
 
