@@ -51,6 +51,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+from numba import njit
 from scipy.spatial import cKDTree
 
 from .errors import InputError
@@ -65,8 +66,6 @@ DENSITY_RING_KM = 10.0
 #: Radius of the neighbourhood whose nearest ground stroke and largest |peak current| every
 #: answer states, even when nothing falls within the site's radius, km (a setting of ours).
 CONTEXT_KM = 10.0
-#: Ground strokes per time slice of the neighbourhood search (a tuning setting).
-GROUND_SLICE = 65_536
 #: One-sided confidence of the stated upper bound of the unrecorded-flash chance.
 RESIDUAL_UPPER_CONFIDENCE = 0.95
 
@@ -263,23 +262,35 @@ class StrokeIndex:
             self._first_ground[key] = (sel, tree)
         return self._first_ground[key]
 
-    def ground(self, include_likely_ic: bool):
-        """Eligible ground strokes in time slices, each with its k-d tree (for the neighbourhood).
+    def ground_grid(self, include_likely_ic: bool):
+        """Eligible ground strokes on a latitude/longitude grid (for the neighbourhood search).
 
-        Returns a list of ``(members, tree, t_first_ns, t_last_ns)``; slices hold about
-        :data:`GROUND_SLICE` strokes in time order, so a query for a short window only
-        searches the slices it overlaps.
+        Cells are at least CONTEXT_KM (+1 %) tall and wide at every latitude of the data (the
+        longitude width set at the most poleward stroke), so a circle of CONTEXT_KM about any site
+        lies in the 3 x 3 cells about its own. Strokes are sorted by (cell, time). Returns
+        ``(stroke rows, cell ids, cell starts, cell ends, cell height deg, rows, columns)`` or None.
         """
-        key = ("all", bool(include_likely_ic))
+        key = ("grid", bool(include_likely_ic))
         if key not in self._first_ground:
             sel = np.flatnonzero(self.is_cg & (bool(include_likely_ic) | ~self.likely_ic))
-            sel = sel[np.argsort(self.t_ns[sel], kind="stable")]
-            slices = []
-            for k0 in range(0, sel.size, GROUND_SLICE):
-                m = sel[k0:k0 + GROUND_SLICE]
-                slices.append((m, cKDTree(_unit_vectors(self.lat[m], self.lon[m])), int(self.t_ns[m[0]]),
-                               int(self.t_ns[m[-1]])))
-            self._first_ground[key] = slices
+            if not sel.size:
+                self._first_ground[key] = None
+                return None
+            km = CONTEXT_KM * 1.01 + 0.05
+            dlat = km / 110.5
+            top = min(float(np.max(np.abs(self.lat[sel]))) + 2.0 * dlat, 89.9)
+            n_lon = int(360.0 // (km / (111.0 * math.cos(math.radians(top)))))
+            if n_lon < 3:  # near a pole one column would wrap onto itself: one cell per row
+                n_lon = 1
+            n_lat = int(math.ceil(180.0 / dlat)) + 1
+            rows = ((self.lat[sel] + 90.0) / dlat).astype(np.int64)
+            cols = ((self.lon[sel] + 180.0) / (360.0 / n_lon)).astype(np.int64) % n_lon
+            cid = rows * n_lon + cols
+            order = np.lexsort((self.t_ns[sel], cid))
+            sel, cid = sel[order], cid[order]
+            ids, start, counts = np.unique(cid, return_index=True, return_counts=True)
+            self._first_ground[key] = (sel, ids, start.astype(np.int64), (start + counts).astype(np.int64), dlat,
+                                       n_lat, n_lon)
         return self._first_ground[key]
 
 
@@ -503,68 +514,175 @@ def _best_per_site(values: np.ndarray, site: np.ndarray, rows: np.ndarray, n: in
     return best, top
 
 
+#: The sphere distance differs from the geodesic by less than this share (plus 1 m): pairs
+#: this close to a limit get the exact geodesic.
+_SPHERE_SLACK = 0.006
+
+
+@njit(cache=True)
+def _hav_km(lat1, lon1, lat2, lon2):
+    p1, p2 = math.radians(lat1), math.radians(lat2)
+    dphi = p2 - p1
+    dl = math.radians(lon2 - lon1)
+    h = math.sin(dphi / 2.0) ** 2 + math.cos(p1) * math.cos(p2) * math.sin(dl / 2.0) ** 2
+    return 2.0 * MEAN_EARTH_RADIUS_KM * math.asin(math.sqrt(min(max(h, 0.0), 1.0)))
+
+
+@njit(cache=True)
+def _context_kernel(site_lat, site_lon, t0, t1, s_lat, s_lon, s_coslat, s_t, s_abs, cell_ids, cell_start, cell_end,
+                    dlat_deg, n_lat, n_lon, limit_km, out_i, out_j):
+    """Per site on the mean sphere: the count and largest |Ip| of strokes surely within
+    `limit_km`, the nearest and second-nearest distances (and the nearest's row), and the pairs
+    near the limit (into `out_i`, `out_j` while they have room; their number is returned).
+
+    Strokes are sorted by (cell, time); a site visits the 3 x 3 cells about its own and, in each,
+    only the strokes of its window (binary search on time).
+    """
+    n = site_lat.size
+    count = np.zeros(n, np.int64)
+    big = np.full(n, -np.inf)
+    dmin = np.full(n, np.inf)
+    d2nd = np.full(n, np.inf)
+    jmin = np.full(n, -1, np.int64)
+    sure = (limit_km - 1e-3) / (1.0 + _SPHERE_SLACK)
+    maybe = (limit_km + 1e-3) / (1.0 - _SPHERE_SLACK)
+    lat_lim = maybe / 111.19  # one degree of latitude is 111.195 km on the mean sphere
+    k = 0
+    cap = out_i.size
+    for s in range(n):
+        la, lo_ = site_lat[s], site_lon[s]
+        p1 = math.radians(la)
+        c1 = math.cos(p1)
+        lc = int((la + 90.0) / dlat_deg)
+        oc = int((lo_ + 180.0) / (360.0 / n_lon)) % n_lon
+        for a in range(lc - 1, lc + 2):
+            if a < 0 or a >= n_lat:
+                continue
+            for bb in range(3 if n_lon >= 3 else n_lon):
+                b = oc - 1 + bb if n_lon >= 3 else bb  # with fewer than 3 columns, each once
+                cid = a * n_lon + (b % n_lon)
+                pos = np.searchsorted(cell_ids, cid)
+                if pos >= cell_ids.size or cell_ids[pos] != cid:
+                    continue
+                lo, hi = cell_start[pos], cell_end[pos]
+                i0 = lo + np.searchsorted(s_t[lo:hi], t0[s])
+                i1 = lo + np.searchsorted(s_t[lo:hi], t1[s], side="right")
+                for j in range(i0, i1):
+                    if abs(s_lat[j] - la) > lat_lim:
+                        continue
+                    sp = math.sin(math.radians(s_lat[j] - la) / 2.0)
+                    sl = math.sin(math.radians(s_lon[j] - lo_) / 2.0)
+                    h = sp * sp + c1 * s_coslat[j] * sl * sl
+                    d = 2.0 * MEAN_EARTH_RADIUS_KM * math.asin(math.sqrt(min(max(h, 0.0), 1.0)))
+                    if d > maybe:
+                        continue
+                    if d < dmin[s]:
+                        d2nd[s] = dmin[s]
+                        dmin[s] = d
+                        jmin[s] = j
+                    elif d < d2nd[s]:
+                        d2nd[s] = d
+                    if d <= sure:
+                        count[s] += 1
+                        if s_abs[j] > big[s]:
+                            big[s] = s_abs[j]
+                    else:
+                        if k < cap:
+                            out_i[k] = s
+                            out_j[k] = j
+                        k += 1
+    return count, big, dmin, d2nd, jmin, k
+
+
+@njit(cache=True)
+def _rivals_kernel(site_lat, site_lon, t0, t1, top, s_lat, s_lon, s_t, cell_ids, cell_start, cell_end,
+                   dlat_deg, n_lat, n_lon, out_i, out_j):
+    """Pairs whose sphere distance is at most `top` (per site): the nearest stroke's rivals."""
+    k = 0
+    cap = out_i.size
+    for s in range(site_lat.size):
+        lc = int((site_lat[s] + 90.0) / dlat_deg)
+        oc = int((site_lon[s] + 180.0) / (360.0 / n_lon)) % n_lon
+        for a in range(lc - 1, lc + 2):
+            if a < 0 or a >= n_lat:
+                continue
+            for bb in range(3 if n_lon >= 3 else n_lon):
+                b = oc - 1 + bb if n_lon >= 3 else bb
+                cid = a * n_lon + (b % n_lon)
+                pos = np.searchsorted(cell_ids, cid)
+                if pos >= cell_ids.size or cell_ids[pos] != cid:
+                    continue
+                lo, hi = cell_start[pos], cell_end[pos]
+                i0 = lo + np.searchsorted(s_t[lo:hi], t0[s])
+                i1 = lo + np.searchsorted(s_t[lo:hi], t1[s], side="right")
+                for j in range(i0, i1):
+                    if _hav_km(site_lat[s], site_lon[s], s_lat[j], s_lon[j]) <= top[s]:
+                        if k < cap:
+                            out_i[k] = s
+                            out_j[k] = j
+                        k += 1
+    return k
+
+
+def _collect(kernel, args, cap):
+    """Run a collecting kernel, again with room enough when the first guess of pairs was short."""
+    out_i, out_j = np.zeros(cap, np.int64), np.zeros(cap, np.int64)
+    res = kernel(*args, out_i, out_j)
+    k = res[-1] if isinstance(res, tuple) else res
+    if k > cap:
+        out_i, out_j = np.zeros(k, np.int64), np.zeros(k, np.int64)
+        res = kernel(*args, out_i, out_j)
+    return res, out_i[:k], out_j[:k]
+
+
 def _context(index: StrokeIndex, lat, lon, t0, t1, include_likely_ic):
     """Per site: eligible ground strokes within CONTEXT_KM in the window (count, nearest, largest |Ip|).
 
-    Pairs come from a k-d tree of the eligible ground strokes, are cut to the window at once,
-    and decided on the mean sphere; only the strokes whose sphere distance is within 0.6 % of the
-    limit, and each site's nearest few, get the exact geodesic (the two differ by less than 0.6 %).
+    A compiled pass over a latitude/longitude grid of the eligible ground strokes (cells at least
+    CONTEXT_KM wide, strokes in time order within a cell) decides on the mean sphere; the pairs
+    within 0.6 % of the limit, and the nearest stroke's rivals, get the exact geodesic.
     """
     n = lat.size
     out = {"n_ground_within_context": np.zeros(n, np.int64), "nearest_ground_km": np.full(n, np.nan),
            "nearest_ground_bearing_deg": np.full(n, np.nan), "nearest_ground_peak_ka": np.full(n, np.nan),
            "max_abs_peak_ka_context": np.full(n, np.nan)}
-    slices = index.ground(include_likely_ic)
-    if not slices or n == 0:
+    g = index.ground_grid(include_likely_ic)
+    if g is None or n == 0:
         return out
-    xyz = _unit_vectors(lat, lon)
-    r = float(_chord(CONTEXT_KM))
-    parts_i, parts_j, parts_c = [], [], []
-    for members, tree, a, b in slices:
-        sites = np.flatnonzero((t0 <= b) & (t1 >= a))  # sites whose window meets this slice
-        if sites.size == 1:  # one site: a ball query, no tree of sites
-            hit = np.asarray(tree.query_ball_point(xyz[sites[0]], r=r, return_sorted=False), dtype=np.int64)
-            parts_i.append(np.full(hit.size, sites[0], np.int64))
-            parts_j.append(members[hit])
-            parts_c.append(np.linalg.norm(tree.data[hit] - xyz[sites[0]], axis=1) if hit.size else np.zeros(0))
-        elif sites.size:
-            got = cKDTree(xyz[sites]).sparse_distance_matrix(tree, r, output_type="ndarray")
-            parts_i.append(sites[got["i"]])
-            parts_j.append(members[got["j"]])
-            parts_c.append(got["v"])
-    if not parts_i:
-        return out
-    si, sj, chord = np.concatenate(parts_i), np.concatenate(parts_j), np.concatenate(parts_c)
-    ok = (index.t_ns[sj] >= t0[si]) & (index.t_ns[sj] <= t1[si])
-    si, sj, chord = si[ok], sj[ok], chord[ok]
-    if not si.size:
-        return out
-    d = 2.0 * MEAN_EARTH_RADIUS_KM * np.arcsin(np.minimum(chord / 2.0, 1.0))  # the chord as a sphere distance
-    band = np.abs(d - CONTEXT_KM) <= CONTEXT_KM * 0.006 + 1e-3
-    if np.any(band):  # the exact test where the sphere could be wrong
-        dg, _ = inverse_km(lat[si[band]], lon[si[band]], index.lat[sj[band]], index.lon[sj[band]])
-        d[band] = np.where(dg <= CONTEXT_KM, np.minimum(dg, CONTEXT_KM), CONTEXT_KM * 2.0)
-    ok = d <= CONTEXT_KM
-    si, sj, d = si[ok], sj[ok], d[ok]
-    if not si.size:
-        return out
-    out["n_ground_within_context"] = np.bincount(si, minlength=n).astype(np.int64)
-    big = np.full(n, -np.inf)
-    np.maximum.at(big, si, np.abs(index.peak_ka[sj]))
+    sel, cell_ids, c0, c1, dlat, n_lat, n_lon = g
+    s_lat, s_lon, s_t = index.lat[sel], index.lon[sel], index.t_ns[sel]
+    s_abs = np.abs(index.peak_ka[sel])
+    args = (lat, lon, t0, t1, s_lat, s_lon, np.cos(np.radians(s_lat)), s_t, s_abs, cell_ids, c0, c1, dlat, n_lat,
+            n_lon, CONTEXT_KM)
+    (count, big, dmin, d2nd, jmin, _k), bi, bj = _collect(_context_kernel, args, 64 * n + 1024)
+    if bi.size:  # the pairs near the limit: the geodesic decides
+        dg, _ = inverse_km(lat[bi], lon[bi], s_lat[bj], s_lon[bj])
+        inside = dg <= CONTEXT_KM
+        np.add.at(count, bi[inside], 1)
+        np.maximum.at(big, bi[inside], s_abs[bj[inside]])
+    out["n_ground_within_context"] = count
     out["max_abs_peak_ka_context"] = np.where(np.isfinite(big), big, np.nan)
-    # Nearest: every stroke within 0.6 % (+1 m) of the site's sphere minimum gets the geodesic.
-    dmin = np.full(n, np.inf)
-    np.minimum.at(dmin, si, d)
-    near = np.flatnonzero(d <= dmin[si] * 1.006 + 1e-3)
-    dg, bg = inverse_km(lat[si[near]], lon[si[near]], index.lat[sj[near]], index.lon[sj[near]])
-    order = np.lexsort((sj[near], dg, si[near]))
-    first = np.ones(order.size, dtype=bool)
-    first[1:] = si[near][order][1:] != si[near][order][:-1]
-    pick = order[first]
-    s_, j_ = si[near][pick], sj[near][pick]
-    out["nearest_ground_km"][s_] = dg[pick]
-    out["nearest_ground_bearing_deg"][s_] = bg[pick]
-    out["nearest_ground_peak_ka"][s_] = index.peak_ka[j_]
+    # The nearest: the sphere's nearest, unless a rival lies within the slack of it.
+    has = jmin >= 0
+    close = has & (d2nd <= dmin * (1.0 + _SPHERE_SLACK) / (1.0 - _SPHERE_SLACK) + 2e-3)
+    ni, nj = np.flatnonzero(has & ~close), jmin[has & ~close]
+    if np.any(close):
+        sub = np.flatnonzero(close)
+        top = dmin[sub] * (1.0 + _SPHERE_SLACK) / (1.0 - _SPHERE_SLACK) + 2e-3
+        _k, ri, rj = _collect(_rivals_kernel, (lat[sub], lon[sub], t0[sub], t1[sub], top, s_lat, s_lon, s_t, cell_ids,
+                                               c0, c1, dlat, n_lat, n_lon), 8 * sub.size + 64)
+        ni, nj = np.concatenate([ni, sub[ri]]), np.concatenate([nj, rj])
+    if ni.size:
+        dg, bg = inverse_km(lat[ni], lon[ni], s_lat[nj], s_lon[nj])
+        ok = dg <= CONTEXT_KM
+        ni, nj, dg, bg = ni[ok], nj[ok], dg[ok], bg[ok]
+        order = np.lexsort((nj, dg, ni))
+        first = np.ones(order.size, dtype=bool)
+        first[1:] = ni[order][1:] != ni[order][:-1]
+        pick = order[first]
+        out["nearest_ground_km"][ni[pick]] = dg[pick]
+        out["nearest_ground_bearing_deg"][ni[pick]] = bg[pick]
+        out["nearest_ground_peak_ka"][ni[pick]] = index.peak_ka[sel[nj[pick]]]
     return out
 
 

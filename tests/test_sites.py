@@ -407,3 +407,46 @@ def test_residual_with_no_flash_in_the_ring_is_an_upper_bound():
     assert r["p_unrecorded_upper"] == pytest.approx(-math.expm1(-lam), rel=1e-12)
     assert "at most " + S.percent(-math.expm1(-lam)) in res.sentence and "95% upper bound" in res.sentence
     assert "less than 0.1%" not in res.sentence
+
+
+@pytest.mark.parametrize("centre", [(45.5, -93.2), (-17.0, 180.0), (88.5, 20.0)])
+def test_neighbourhood_figures_equal_a_plain_scan(centre):
+    # The compiled grid search (count, nearest and largest |Ip| within CONTEXT_KM in each site's
+    # window) equals a plain scan of every stroke with pyproj's geodesic (Karney 2013); across
+    # the antimeridian and near a pole too. Strokes and sites constructed here.
+    from debrief.geodesy import inverse_km
+
+    rng = np.random.default_rng(3)
+    lat0, lon0 = centre
+    n = 600
+    rows = []
+    for i in range(n):
+        g = GEOD.Direct(lat0, lon0, float(rng.uniform(0, 360)), float(rng.uniform(0, 25_000)))
+        rows.append({"latitude": g["lat2"], "longitude": g["lon2"], "flash_id": i + 1,
+                     "peak_current_ka": float(rng.choice([-1, 1]) * rng.uniform(5, 90)),
+                     "type": "CG" if rng.random() < 0.8 else "IC", "likely_ic": bool(rng.random() < 0.05),
+                     "time": (pd.Timestamp("2026-07-14T19:00:00Z") + pd.Timedelta(seconds=float(rng.uniform(0, 7200)))).isoformat()})
+    st_ = table(rows)
+    idx = S.StrokeIndex(st_)
+    m = 40
+    sl, so = [], []
+    for _ in range(m):
+        g = GEOD.Direct(lat0, lon0, float(rng.uniform(0, 360)), float(rng.uniform(0, 15_000)))
+        sl.append(g["lat2"]); so.append(g["lon2"])
+    lat, lon = np.array(sl), np.array(so)
+    t0 = pd.Timestamp("2026-07-14T19:00:00Z").value + rng.integers(0, 3600, m) * 1_000_000_000
+    t1 = t0 + 3600 * 1_000_000_000
+    got = S._context(idx, lat, lon, t0, t1, False)
+    ok = idx.is_cg & ~idx.likely_ic
+    for s in range(m):
+        w = ok & (idx.t_ns >= t0[s]) & (idx.t_ns <= t1[s])
+        d, b = inverse_km(np.full(w.sum(), lat[s]), np.full(w.sum(), lon[s]), idx.lat[w], idx.lon[w])
+        inn = d <= S.CONTEXT_KM
+        assert got["n_ground_within_context"][s] == int(inn.sum())
+        if inn.any():
+            k = np.argmin(np.where(inn, d, np.inf))
+            assert got["nearest_ground_km"][s] == pytest.approx(d[k], abs=1e-9)
+            assert got["nearest_ground_bearing_deg"][s] == pytest.approx(b[k], abs=1e-6)
+            assert got["max_abs_peak_ka_context"][s] == pytest.approx(np.abs(idx.peak_ka[w][inn]).max())
+        else:
+            assert math.isnan(got["nearest_ground_km"][s]) and math.isnan(got["max_abs_peak_ka_context"][s])
