@@ -257,7 +257,7 @@ def _ts(v):
 
 
 def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=None, tolerance_min: float = 1.0,
-                     sites=None) -> pd.DataFrame:
+                     sites=None, data_start=None) -> pd.DataFrame:
     """Where work went on inside a stop period, or stopped outside one.
 
     Parameters
@@ -269,6 +269,9 @@ def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=
         `data_end`), ``source_row`` (:func:`debrief.io.sites.read_crew_log`).
     data_end : Timestamp, optional
         End of the data (default: the latest time in either table).
+    data_start : Timestamp, optional
+        Start of the data or of the analysis window: before it nothing is known, so both the
+        periods and the logged stops are compared from there on.
     tolerance_min : float
         Pieces shorter than this are not listed (typed times carry minutes only).
     sites : sequence of str, optional
@@ -288,6 +291,7 @@ def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=
         times = [x for x in times if x is not pd.NaT and not pd.isna(x)]
         data_end = max(times) if times else pd.Timestamp(0, tz="UTC")
     end_ns = pd.Timestamp(data_end).tz_convert("UTC").value
+    start_ns = pd.Timestamp(data_start).tz_convert("UTC").value if data_start is not None else np.iinfo(np.int64).min
     tol = tolerance_min * 60e9
     rows = []
     known = set(sites) if sites is not None else None
@@ -299,14 +303,24 @@ def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=
             continue
         p = stop[stop["site"] == name]
         c = crew_log[crew_log["site"] == name]
-        # After the data end nothing is known: periods are cut there, open stops run to it.
-        p_iv = [(a.value, min(b.value, end_ns)) for a, b in zip(p["start"], p["all_clear"]) if a.value < end_ns]
-        c_iv = [(a.value, (b.value if b is not pd.NaT and not pd.isna(b) else end_ns)) for a, b in zip(c["stopped"], c["resumed"])]
-        lines = c["source_row"].tolist()
+        # Outside the data (or the window) nothing is known: periods and logged stops are cut to
+        # it, and open stops run to its end.
+        early = p["open_at_start"].to_numpy(bool) if "open_at_start" in p else np.zeros(len(p), bool)
+        seen = [(max(a.value, start_ns), min(b.value, end_ns), e) for a, b, e in zip(p["start"], p["all_clear"], early)
+                if a.value < end_ns and b.value > start_ns]
+        p_iv = [(a, b) for a, b, _e in seen]
+        # A period that may have begun before the data start: a stop logged before its first seen
+        # stroke is not "outside" it (unknown, not a finding).
+        p_iv_stop = [(start_ns if e else a, b) for a, b, e in seen]
+        c_iv = [(max(a.value, start_ns), min(b.value if b is not pd.NaT and not pd.isna(b) else end_ns, end_ns))
+                for a, b in zip(c["stopped"], c["resumed"])]
+        keep = [k for k, (a, b) in enumerate(c_iv) if b > a]
+        c_iv = [c_iv[k] for k in keep]
+        lines = [c["source_row"].tolist()[k] for k in keep]
         for a, b, _k in _subtract(p_iv, c_iv):
             if b - a >= tol:
                 rows.append((name, "worked during stop period", _ts(a), _ts(b), (b - a) / 60e9, pd.NA))
-        for a, b, k in _subtract(c_iv, p_iv):
+        for a, b, k in _subtract(c_iv, p_iv_stop):
             if b - a >= tol:
                 rows.append((name, "stopped outside stop period", _ts(a), _ts(b), (b - a) / 60e9, lines[k]))
     out = pd.DataFrame(rows, columns=["site", "finding", "start", "end", "minutes", "crew_log_line"])

@@ -199,7 +199,7 @@ class Analysis:
             comparison = None
             if log is not None:
                 comparison = alerts.compare_crew_log(periods, log, data_end=self.coverage.t1,
-                                                     sites=list(crew["name"].astype(str)))
+                                                     data_start=self.coverage.t0, sites=list(crew["name"].astype(str)))
             return periods, totals, comparison
         return self._cached(key, make)
 

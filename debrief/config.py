@@ -270,7 +270,7 @@ def check_bbox(bbox, where: str = "event.toml coverage_bbox") -> tuple[float, fl
 def _type_word(spec: Key) -> str:
     if int in spec.types and float not in spec.types:
         return "whole number"
-    names = {int: "number", float: "number", str: "string", bool: "true/false", dict: "table", list: "array",
+    names = {int: "number", float: "number", str: "string", bool: "true/false", dict: "table", list: "list",
              type(None): None}
     words = sorted({names[t] for t in spec.types if names[t]})
     return " or ".join(words)

@@ -165,11 +165,14 @@ def data_coverage(strokes: pd.DataFrame, config=None) -> Coverage:
         end = end if end is not None else t.max().ceil("min")
         if get("coverage_start") or get("coverage_end"):
             t_src = "data_extent"  # only half declared: the other half is the data's
+    toml = (config.event_dir / "event.toml") if config is not None and config.event_dir is not None else "event.toml"
     if end < start:
-        raise InputError(f"event.toml: coverage_end ({iso_utc(end)}) is before coverage_start ({iso_utc(start)})")
+        a = "coverage_start" if get("coverage_start") else "the first stroke (no coverage_start)"
+        b = "coverage_end" if get("coverage_end") else "the last stroke (no coverage_end)"
+        raise InputError(f"{toml}: {b} ({iso_utc(end)}) is before {a} ({iso_utc(start)})")
     bbox, path = get("coverage_bbox"), get("coverage_file")
     if bbox is not None and path is not None:
-        raise InputError("event.toml: give coverage_bbox or coverage_file, not both")
+        raise InputError(f"{toml}: give coverage_bbox or coverage_file, not both")
     if bbox is not None:
         area, text = _declared_bbox(bbox)
         a_src = "declared"
@@ -184,7 +187,9 @@ def data_coverage(strokes: pd.DataFrame, config=None) -> Coverage:
         w, s, e_, n = area.bounds
         text = f"the polygon of {p.name if hasattr(p, 'name') else p} (within {w:.3f} to {e_:.3f} E, {s:.3f} to {n:.3f} N)"
         a_src = "declared"
-    else:
+    if (bbox is not None or path is not None) and len(strokes):
+        _check_declared_area(area, strokes, bbox)
+    if bbox is None and path is None:
         if not len(strokes):
             raise InputError("no strokes to take the data's coverage from: declare coverage_bbox in event.toml")
         lat = strokes["latitude"].to_numpy(float)
@@ -205,8 +210,24 @@ def data_coverage(strokes: pd.DataFrame, config=None) -> Coverage:
     return Coverage(start=start, end=end, area=area, time_source=t_src, area_source=a_src, area_text=text)
 
 
+def _check_declared_area(area, strokes, bbox) -> None:
+    """A declared area that holds none of the file's strokes is a mistake, not a coverage."""
+    lon = strokes["longitude"].to_numpy(float)
+    lat = strokes["latitude"].to_numpy(float)
+    if np.any(shapely.contains_xy(area, lon, lat)):
+        return
+    key = "coverage_bbox" if bbox is not None else "coverage_file"
+    hint = ""
+    if bbox is not None:
+        w, s, e, n = (float(v) for v in bbox)
+        if np.any(shapely.contains_xy(_bbox_polygon(e, s, w, n), lon, lat)):
+            hint = (f"; with west and east swapped ([{e:g}, {s:g}, {w:g}, {n:g}]) it would hold them: west > east "
+                    "means an area across 180 degrees")
+    raise InputError(f"event.toml {key}: none of the file's {len(lon):,} strokes lies inside the declared area{hint}")
+
+
 def _bbox_text(w, s, e, n) -> str:
-    return f"[{w:.4f}, {s:.4f}, {e:.4f}, {n:.4f}] (west, south, east, north)"
+    return f"west {w:.4f}, south {s:.4f}, east {e:.4f}, north {n:.4f}"
 
 
 def _declared_bbox(bbox):
@@ -238,7 +259,9 @@ def check_places(coverage: Coverage, lat_deg, lon_deg, radius_km, start=None, en
     Returns
     -------
     DataFrame
-        ``coverage`` (inside/partial/outside), ``coverage_source``, ``coverage_note`` (plain words,
+        ``coverage`` (inside/partial/outside), ``coverage_source`` (``declared`` when both the time and
+        the area are declared, else ``data_extent``), ``coverage_time_source``,
+        ``coverage_area_source``, ``coverage_note`` (plain words,
         empty when inside), ``uncovered_area_share`` (0-1), ``outside_km`` (distance of the centre
         outside the area, 0 inside), ``coverage_warning`` (a likely mistake, or empty).
     """
@@ -251,8 +274,8 @@ def check_places(coverage: Coverage, lat_deg, lon_deg, radius_km, start=None, en
     t1 = _as_ns(end, n, c1)
     t0 = np.where(t0 == np.iinfo(np.int64).min, c0, t0)
     t1 = np.where(t1 == np.iinfo(np.int64).max, c1, t1)
-    # Time.
-    t_out = (t1 < c0) | (t0 > c1)
+    # Time: a period that only touches the covered time (no overlap of any length) is outside.
+    t_out = np.where(t1 > t0, (t1 <= c0) | (t0 >= c1), (t1 < c0) | (t0 > c1))
     t_in = (t0 >= c0) & (t1 <= c1)
     # Place.
     plane, area_xy, edge = coverage.plane()
@@ -270,41 +293,45 @@ def check_places(coverage: Coverage, lat_deg, lon_deg, radius_km, start=None, en
         covered = shapely.area(shapely.intersection(circles, area_xy)) / shapely.area(circles)
         share[part] = np.clip(1.0 - covered, 0.0, 1.0)
     state = np.where(t_out | p_out, "outside", np.where(t_in & p_in, "inside", "partial")).astype(object)
-    bound = "the analysis window" if (coverage.window_start is not None or coverage.window_end is not None) else "the data"
     notes, warns = [], []
     for i in range(n):
         parts = []
         if t_out[i]:
-            side = "before the start" if t1[i] < c0 else "after the end"
-            parts.append(f"the period lies {side} of the time covered ({_span(c0, c1)}, {_why(coverage, t1[i] < c0)})")
+            before = t1[i] <= c0
+            side = "before the start" if before else "after the end"
+            parts.append(f"the period lies {side} of the time covered, {_span(c0, c1)}, set by {_why(coverage, before)}")
         elif not t_in[i]:
             miss = []
             if t0[i] < c0:
-                miss.append(f"{_minutes(c0 - t0[i])} before {iso_utc(pd.Timestamp(c0, tz='UTC'))}")
+                miss.append(f"{_minutes(c0 - t0[i])} before {iso_utc(pd.Timestamp(c0, tz='UTC'))}, the start of "
+                            f"{_why(coverage, True)}")
             if t1[i] > c1:
-                miss.append(f"{_minutes(t1[i] - c1)} after {iso_utc(pd.Timestamp(c1, tz='UTC'))}")
-            parts.append("part of the period is not covered: " + " and ".join(miss) + f" ({bound}'s limits)")
+                miss.append(f"{_minutes(t1[i] - c1)} after {iso_utc(pd.Timestamp(c1, tz='UTC'))}, the end of "
+                            f"{_why(coverage, False)}")
+            parts.append("part of the period is not covered: " + " and ".join(miss))
         if p_out[i]:
-            parts.append(f"the place lies outside the area covered ({coverage.area_text}), "
-                         f"{d_edge[i]:.1f} km from its edge")
+            parts.append(f"the place lies {d_edge[i]:.1f} km outside the area covered, {coverage.area_text}")
         elif part[i]:
-            parts.append(f"{100.0 * share[i]:.0f}% of the {r[i]:g} km circle lies outside the area covered "
-                         f"({coverage.area_text})")
+            parts.append(f"{100.0 * share[i]:.0f}% of the {r[i]:g} km circle lies outside the area covered, "
+                         f"{coverage.area_text}")
         notes.append("; ".join(parts))
         warns.append(_suspect(coverage, lat[i], lon[i], r[i], 0.0 if contained[i] else d_edge[i]))
     return pd.DataFrame({
-        "coverage": state, "coverage_source": coverage.source, "coverage_note": notes,
+        "coverage": state, "coverage_source": coverage.source, "coverage_time_source": coverage.time_source,
+        "coverage_area_source": coverage.area_source, "coverage_note": notes,
         "uncovered_area_share": share, "outside_km": np.where(contained, 0.0, d_edge),
         "coverage_warning": warns,
     })
 
 
 def _why(coverage, before):
+    """What limits the answerable time on one side: the analysis window or the data's coverage."""
     if coverage.window_start is not None and before and coverage.window_start > coverage.start:
         return "the analysis window"
     if coverage.window_end is not None and not before and coverage.window_end < coverage.end:
         return "the analysis window"
-    return "declared" if coverage.time_source == "declared" else "the file's first and last strokes, to the minute"
+    return ("the coverage declared in event.toml" if coverage.time_source == "declared"
+            else "the data: the file's first and last strokes, to the minute")
 
 
 def _span(a_ns, b_ns) -> str:

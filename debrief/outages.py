@@ -333,6 +333,7 @@ class OutageMatch:
     verdicts: pd.DataFrame
     cautions: list = field(default_factory=list)
     notes: list = field(default_factory=list)
+    coverage_source: str = "not_checked"
 
 
 def _candidate_pairs(t_ns, outages, lc):
@@ -417,10 +418,13 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
     cov_state = np.full(len(outages), "inside" if coverage is not None else "not_checked", dtype=object)
     cov_note = np.full(len(outages), "", dtype=object)
     t_trip = pd.to_datetime(outages["time"], utc=True)
+    cov_state[problem != ""] = "not_checked"  # rows that cannot be analysed say nothing of coverage
     if window is not None:
         w0, w1 = window
         out_w = ((t_trip < w0) | (t_trip > w1)).to_numpy() & (problem == "")
         problem = np.where(out_w, OUTSIDE_WINDOW, problem).astype(object)
+        cov_state[out_w] = "outside"
+        cov_note[out_w] = "the trip is outside the analysis window"
     if coverage is not None and len(outages):
         from .coverage import check_lines, combine
 
@@ -475,10 +479,15 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
         if row.get("cfo_defaulted", False):
             notes.append(f"line {row['line_id']}: CFO {row['cfo_kv']:g} kV from [lines] default_cfo_kv")
     if len(cand) and (cand["location_error"] == "none").any():
-        notes.append("some candidates have no error ellipse and no default_uncertainty_km is set: "
-                     "their probabilities are 0 or 1 from the reported position alone")
+        # A position without its error would read as certainty: ask, as the site check does.
+        from .errors import InputError
+
+        k = int((cand["location_error"] == "none").sum())
+        raise InputError(f"{k} candidate stroke(s) have no error ellipse; set default_uncertainty_km in event.toml "
+                         "or pass --default-uncertainty-km KM (circular semi-axis at ellipse_confidence)")
     verdicts = _verdicts(outages, problem, cand, lines, lc, cov_state, cov_note)
-    return OutageMatch(candidates=cand, verdicts=verdicts, cautions=list(CAUTIONS), notes=notes)
+    return OutageMatch(candidates=cand, verdicts=verdicts, cautions=list(CAUTIONS), notes=notes,
+                       coverage_source=coverage.source if coverage is not None else "not_checked")
 
 
 def _evaluate_pairs(po, ps, og, li, lines, strokes, t_all, config, lc, has_fault):
@@ -903,6 +912,7 @@ def verdict_records(result: OutageMatch) -> list[dict]:
                     "verdict_low_current": r["verdict_low_current"], "verdict_high_current": r["verdict_high_current"],
                     "n_candidates": int(r["n_candidates"]), "n_contacts": int(r["n_contacts"]),
                     "p_any": _num(r["p_any"]), "coverage": r["coverage"], "coverage_note": r["coverage_note"],
+                    "coverage_source": result.coverage_source,
                     "best_candidate": best})
     return out
 

@@ -124,7 +124,9 @@ class SiteResult:
 def _jsonable(d: dict) -> dict:
     out = {}
     for k, v in d.items():
-        if isinstance(v, pd.Timestamp):
+        if v is pd.NaT:
+            out[k] = None
+        elif isinstance(v, pd.Timestamp):
             out[k] = iso_utc(v) if v is not pd.NaT else None
         elif isinstance(v, (np.floating, float)):
             out[k] = None if not math.isfinite(float(v)) else float(v)
@@ -783,6 +785,8 @@ def _clock(ts: pd.Timestamp, tz) -> str:
 
 
 def _when(t0: pd.Timestamp, t1: pd.Timestamp, tz) -> str:
+    if t0 == t1:
+        return f"at {_clock(t0, tz)} on {pd.Timestamp(t0).tz_convert('UTC'):%Y-%m-%d} (UTC date)"
     z = zone(tz)
     a, b = t0.tz_convert("UTC"), t1.tz_convert("UTC")
     utc = f"{a:%Y-%m-%d %H:%M} and {b:%H:%M} UTC" if a.date() == b.date() else f"{a:%Y-%m-%d %H:%M} and {b:%Y-%m-%d %H:%M} UTC"
@@ -870,14 +874,17 @@ def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t
                             f"({conf} upper bound {percent(resid['p_unrecorded_upper'])}).")
     else:
         text += " The network's detection efficiency was not given, so the chance of an unrecorded flash is not stated."
-    text += (f" Assumed: error ellipses at {100 * summ['ellipse_confidence']:.0f}% confidence (the network's stated "
-             "level); the strokes of one ground contact combined into one fix with errors independent between "
-             "strokes; different contacts independent.")
-    src = summ.get("coverage_source")
-    if cov == "inside" and src in ("declared", "data_extent"):
-        text += (" The data cover the whole period and circle (coverage "
-                 + ("declared in event.toml)." if src == "declared" else "taken from the data's own extent)."))
-    elif src not in ("declared", "data_extent"):
+    level = ("the network's stated level, from ellipse_confidence" if summ.get("ellipse_confidence_stated") else
+             "debrief's default, not a level the network stated: set ellipse_confidence")
+    text += (f" Assumed: error ellipses at {100 * summ['ellipse_confidence']:.0f}% confidence ({level}); the strokes "
+             "of one ground contact combined into one fix with errors independent between strokes; different "
+             "contacts independent.")
+    words = {"declared": "declared in event.toml", "data_extent": "taken from the data's own extent"}
+    ts, as_ = summ.get("coverage_time_source"), summ.get("coverage_area_source")
+    if cov == "inside" and ts in words and as_ in words:
+        how = (words[ts] if ts == as_ else f"time {words[ts]}, area {words[as_]}")
+        text += f" The data cover the whole period and circle (coverage {how})."
+    elif ts not in words:
         text += " Whether the data cover this place and period was not checked."
     if summ.get("coverage_warning"):
         text += f" Note: {summ['coverage_warning']}"
@@ -964,7 +971,8 @@ def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, co
 
 #: Summary columns of :func:`check_sites`, in order.
 SITES_COLUMNS = (
-    "name", "latitude", "longitude", "radius_km", "start", "end", "coverage", "coverage_source", "coverage_note",
+    "name", "latitude", "longitude", "radius_km", "start", "end", "searched_start", "searched_end", "coverage",
+    "coverage_source", "coverage_time_source", "coverage_area_source", "coverage_note",
     "coverage_warning", "n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "nearest_km",
     "max_p_within", "max_p_within_stroke", "p_any_within", "p_unrecorded", "p_unrecorded_upper",
     "n_set_aside_within", "set_aside_nearest_km", "set_aside_peak_ka", "nearest_ground_km",
@@ -972,6 +980,8 @@ SITES_COLUMNS = (
 )
 
 
+_COVERAGE_FIELDS = ("coverage", "coverage_source", "coverage_time_source", "coverage_area_source", "coverage_note",
+                    "coverage_warning")
 _SUMMARY_COUNTS = ("n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "n_set_aside_within",
                    "n_ground_within_context")
 _SUMMARY_FIGURES = ("nearest_km", "set_aside_nearest_km", "set_aside_peak_ka", "set_aside_p_within", "nearest_ground_km",
@@ -993,16 +1003,28 @@ class _Run:
     radius: np.ndarray
     t0: np.ndarray
     t1: np.ndarray
+    s0: np.ndarray
+    s1: np.ndarray
     tz: str | None
     include_likely_ic: bool
     shapes: dict
     confidence: float
+    confidence_stated: bool = False
 
     def _window(self, s):
         lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
         a = pd.Timestamp(int(self.t0[s]), tz="UTC") if self.t0[s] != lo else _extent(self.index, "min")
         b = pd.Timestamp(int(self.t1[s]), tz="UTC") if self.t1[s] != hi else _extent(self.index, "max")
         return a, b
+
+    def _searched(self, s) -> dict:
+        """The part of the period that was searched (NaT when none was: outside the coverage)."""
+        lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
+        if self.s1[s] < self.s0[s]:
+            return {"searched_start": pd.NaT, "searched_end": pd.NaT}
+        a = pd.Timestamp(int(self.s0[s]), tz="UTC") if self.s0[s] != lo else _extent(self.index, "min")
+        b = pd.Timestamp(int(self.s1[s]), tz="UTC") if self.s1[s] != hi else _extent(self.index, "max")
+        return {"searched_start": a, "searched_end": b}
 
     def _columns(self):
         """The summary and contact-candidate columns as arrays, once (sentences for many sites)."""
@@ -1031,10 +1053,11 @@ class _Run:
         outside = row["coverage"] == "outside"
         summary = {
             "name": name, "latitude": float(self.lat[s]), "longitude": float(self.lon[s]),
-            "radius_km": float(self.radius[s]), "start": w0, "end": w1, "ellipse_confidence": self.confidence,
-            "coverage": row["coverage"], "coverage_source": row["coverage_source"],
-            "coverage_note": row["coverage_note"], "coverage_warning": row["coverage_warning"],
-            **{k: int(row[k]) for k in _SUMMARY_COUNTS},
+            "radius_km": float(self.radius[s]), "start": w0, "end": w1, **self._searched(s),
+            "ellipse_confidence": self.confidence,
+            **{c: row[c] for c in _COVERAGE_FIELDS},
+            "ellipse_confidence_stated": self.confidence_stated,
+            **{k: None if outside else int(row[k]) for k in _SUMMARY_COUNTS},
             **{k: float(row[k]) for k in _SUMMARY_FIGURES},
             # outside the coverage a probability would be a false answer: none is given
             **{k: np.nan if outside else float(row[k]) for k in ("max_p_within", "max_p_within_stroke", "p_any_within")},
@@ -1092,19 +1115,19 @@ def _run(index, cindex, sites, config, include_likely_ic, detection_efficiency, 
             extra[i] = ext
     lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
     cov = None
-    disp = (t0, t1)
+    asked = (t0, t1)  # the period as asked (shown and stated); t0, t1 become the part searched
     if coverage is not None:
         from .coverage import check_places
 
-        asked = (np.where(t0 == lo, coverage.t0.value, t0), np.where(t1 == hi, coverage.t1.value, t1))
-        cov = check_places(coverage, lat, lon, radius, *asked)
-        # The search keeps to what can be answered: the period met with the window and coverage.
-        orig = asked
-        t0, t1 = np.maximum(t0, coverage.t0.value), np.minimum(t1, coverage.t1.value)
+        a0 = np.where(t0 == lo, coverage.t0.value, t0)
+        a1 = np.maximum(np.where(t1 == hi, coverage.t1.value, t1), a0)  # an open end before a late start: an instant
+        asked = (a0, a1)
+        cov = check_places(coverage, lat, lon, radius, a0, a1)
+        # The search keeps to what can be answered: the period met with the window and coverage;
+        # nothing is searched outside.
         out_ = cov["coverage"].to_numpy() == "outside"
-        t0, t1 = np.where(out_, orig[0], t0), np.where(out_, orig[1], t1)
-        t1 = np.where(out_, t0 - 1, t1)  # nothing is searched outside (the period is stated as asked)
-        disp = (np.where(out_, orig[0], t0), np.where(out_, orig[1], t1))
+        t0 = np.maximum(a0, coverage.t0.value)
+        t1 = np.where(out_, t0 - 1, np.minimum(a1, coverage.t1.value))
     cand = _candidates(index, lat, lon, radius, t0, t1, extra, parcels or None)
     ccand = _candidates(cindex, lat, lon, radius, t0, t1, extra, parcels or None)
     ccand["n_strokes"] = cindex.strokes["n_strokes"].to_numpy()[ccand["stroke_row"].to_numpy()]
@@ -1112,11 +1135,12 @@ def _run(index, cindex, sites, config, include_likely_ic, detection_efficiency, 
                              parcels or None)
     summ["n_default"] = np.bincount(cand["site_index"].to_numpy(), weights=cand["ellipse_from_default"].to_numpy(dtype=float),
                                     minlength=n)
-    for c in ("coverage", "coverage_source", "coverage_note", "coverage_warning"):
-        summ[c] = cov[c].to_numpy() if cov is not None else {"coverage": "inside", "coverage_source": "not_checked"}.get(c, "")
+    for c in _COVERAGE_FIELDS:
+        summ[c] = cov[c].to_numpy() if cov is not None else {"coverage": "inside"}.get(c, "not_checked" if "source" in c else "")
     tz = config.time_zone if config is not None else None
     return _Run(index=index, cand=cand, ccand=ccand, summ=summ, resid=resid, sites=sites, lat=lat, lon=lon,
-                radius=radius, t0=disp[0], t1=disp[1], tz=tz, include_likely_ic=include_likely_ic, shapes=shapes,
+                radius=radius, t0=asked[0], t1=asked[1], s0=t0, s1=t1,
+                confidence_stated=bool(config is not None and config.is_given("", "ellipse_confidence")), tz=tz, include_likely_ic=include_likely_ic, shapes=shapes,
                 confidence=index.confidence)
 
 
@@ -1167,15 +1191,23 @@ def check_sites(strokes, sites: pd.DataFrame, config=None, *, include_likely_ic=
     lo, hi = np.iinfo(np.int64).min, np.iinfo(np.int64).max
     out["start"] = pd.to_datetime(np.where(run.t0 == lo, np.datetime64("NaT"), run.t0.astype("datetime64[ns]")), utc=True)
     out["end"] = pd.to_datetime(np.where(run.t1 == hi, np.datetime64("NaT"), run.t1.astype("datetime64[ns]")), utc=True)
+    none = (run.s1 < run.s0) | (run.s0 == lo) | (run.s1 == hi)
+    out["searched_start"] = pd.to_datetime(np.where(none, np.datetime64("NaT"), run.s0.astype("datetime64[ns]")), utc=True)
+    out["searched_end"] = pd.to_datetime(np.where(none, np.datetime64("NaT"), run.s1.astype("datetime64[ns]")), utc=True)
     outside = summ["coverage"].to_numpy() == "outside"
     inside = summ["coverage"].to_numpy() == "inside"
-    for c in ("coverage", "coverage_source", "coverage_note", "coverage_warning", "n_candidates", "n_ground_candidates",
+    for c in _COVERAGE_FIELDS + ("n_candidates", "n_ground_candidates",
               "n_ground_within", "n_contacts", "nearest_km", "max_p_within", "max_p_within_stroke", "p_any_within",
               "n_set_aside_within", "set_aside_nearest_km", "set_aside_peak_ka", "nearest_ground_km",
               "max_abs_peak_ka_context"):
         out[c] = summ[c].to_numpy()
-    for c in ("max_p_within", "max_p_within_stroke", "p_any_within"):
+    # Outside the coverage nothing was searched: no counts, no figures, no probabilities (never "0").
+    for c in ("max_p_within", "max_p_within_stroke", "p_any_within", "nearest_km", "set_aside_nearest_km",
+              "set_aside_peak_ka", "nearest_ground_km", "max_abs_peak_ka_context"):
         out[c] = np.where(outside, np.nan, out[c].to_numpy(dtype=float))
+    for c in ("n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "n_set_aside_within"):
+        out[c] = pd.array(np.where(outside, 0, out[c].to_numpy()), dtype="Int64")
+        out.loc[outside, c] = pd.NA
     for c in ("p_unrecorded", "p_unrecorded_upper"):
         out[c] = np.where(inside, run.resid[c], np.nan) if run.resid is not None else np.nan
     if run.shapes:

@@ -1134,7 +1134,8 @@ def stroke_covariance(strokes, config=None, *, default_uncertainty_km=None, conf
         if default_uncertainty_km is None:
             raise InputError(
                 f"{int(missing.sum())} of {n} strokes have no error ellipse; set "
-                "default_uncertainty_km in event.toml (circular semi-axis at ellipse_confidence, km)"
+                "default_uncertainty_km in event.toml or pass --default-uncertainty-km KM (circular semi-axis "
+                "at ellipse_confidence)"
             )
         if not default_uncertainty_km > 0:
             raise InputError(f"default_uncertainty_km must be positive, got {default_uncertainty_km!r}")

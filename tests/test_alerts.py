@@ -158,3 +158,24 @@ def test_open_at_start_and_coverage_of_periods():
     cov = data_coverage(s, cfg)
     per = A.alert_periods(s, one_site(), coverage=cov)
     assert list(per["coverage"]) == ["inside", "partial"]  # the second period's all-clear runs past 20:30Z
+
+
+def test_crew_log_is_compared_only_inside_the_window():
+    # Constructed: a stop period seen from a window that starts while it runs (open_at_start), a
+    # logged stop that began before the window, and one wholly before it. Before the window
+    # nothing is known: no finding there, and the stop before the period's first seen stroke is
+    # not "outside" it.
+    s = strokes_at([40, 50, 60])
+    w0 = T0 + pd.Timedelta(minutes=30)
+    per = A.alert_periods(s, one_site(), data_start=w0)
+    assert bool(per["open_at_start"].iloc[0])
+    log = pd.DataFrame({"site": ["Depot", "Depot"], "stopped": [T0 - pd.Timedelta(minutes=60), T0 + pd.Timedelta(minutes=5)],
+                        "resumed": [T0 - pd.Timedelta(minutes=30), T0 + pd.Timedelta(minutes=90)], "source_row": [2, 3]})
+    log["stopped"] = log["stopped"].astype("datetime64[ns, UTC]")
+    log["resumed"] = log["resumed"].astype("datetime64[ns, UTC]")
+    found = A.compare_crew_log(per, log, data_start=w0, data_end=T0 + pd.Timedelta(minutes=120), sites=["Depot"])
+    assert found.empty, found
+    # Without the window's start both stops before 19:40 would read as findings.
+    loose = A.compare_crew_log(A.alert_periods(s, one_site()), log, data_end=T0 + pd.Timedelta(minutes=120),
+                               sites=["Depot"])
+    assert (loose["finding"] == "stopped outside stop period").sum() == 2

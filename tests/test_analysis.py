@@ -93,7 +93,7 @@ def test_alert_periods_and_crew_log_agree_row_by_row(narrow, analysis, report_ht
         list(pd.to_datetime(cli["start"], utc=True)) == list(periods["start"])
     rows = next(t for t in tables(report_html, "debrief-table") if t and t[0][:3] == ["Site", "Level", "Start (UTC)"])
     head = rows[0]
-    rep_open = [r_[head.index("Open at end of data")] == "yes" for r_ in rows[1:]]
+    rep_open = [r_[head.index("Open at end of window or data")] == "yes" for r_ in rows[1:]]
     rep_n = [int(r_[head.index("Strokes")]) for r_ in rows[1:]]
     assert rep_open == list(periods["open_at_end"]) and rep_n == list(periods["n_strokes"])
     assert any(periods["open_at_end"])  # the narrowed window ends while a period is running

@@ -117,7 +117,9 @@ def test_sites_reports_bad_rows_and_checks_the_rest(stroke_file, tmp_path, capsy
     assert "line 3" in err and "Broken" in err
     res = pd.read_csv(out)
     assert res["name"].tolist() == ["Near", "Far"]
-    assert res["n_ground_within"].tolist() == [1, 0]
+    assert res["n_ground_within"].iloc[0] == 1
+    # "Far" is 110 km from every stroke of the file: outside the data's extent, no count at all
+    assert res["coverage"].tolist() == ["inside", "outside"] and pd.isna(res["n_ground_within"].iloc[1])
     assert "Cautions:" in text
     missing = tmp_path / "m.csv"
     missing.write_text("name,lat,lon\nA,1,2\n")

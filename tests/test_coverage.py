@@ -30,8 +30,9 @@ def example(example_event):
 
 def _cov(bbox=(-94.0, 45.0, -92.0, 46.0), start="2026-07-14T19:00:00Z", end="2026-07-14T23:00:00Z"):
     cfg = from_dict({"coverage_bbox": list(bbox), "coverage_start": start, "coverage_end": end})
-    strokes = pd.DataFrame({"time": pd.to_datetime(["2026-07-14T20:00:00Z"], utc=True), "latitude": [45.5],
-                            "longitude": [-93.0]})
+    # one stroke just inside the west edge, so the declared area holds the file's strokes
+    strokes = pd.DataFrame({"time": pd.to_datetime(["2026-07-14T20:00:00Z"], utc=True),
+                            "latitude": [(bbox[1] + bbox[3]) / 2.0], "longitude": [bbox[0] + 0.1]})
     return data_coverage(strokes, cfg)
 
 
@@ -96,6 +97,8 @@ def test_likely_mistakes_are_named():
     ('coverage_bbox = [-94, 45, -92, 46]\ncoverage_file = "area.geojson"', "not both"),
     ('coverage_start = "2026-07-14T23:00:00Z"\ncoverage_end = "2026-07-14T19:00:00Z"', "before coverage_start"),
     ('coverage_file = "missing.geojson"', "coverage_file"),
+    ("coverage_bbox = [-92.0, 44.5, -94.0, 46.5]", "west and east swapped"),  # east and west typed the wrong way
+    ('coverage_start = "2026-07-15T02:00:00Z"', "the last stroke (no coverage_end)"),
 ])
 def test_malformed_declaration_is_exit_2(tmp_path, example_event, toml, words, capsys):
     d = tmp_path / "ev"
@@ -161,3 +164,29 @@ def test_coverage_object_round_trip():
     w = c.with_window(pd.Timestamp("2026-07-14T20:00Z"), pd.Timestamp("2026-07-14T21:00Z"))
     assert isinstance(w, Coverage) and w.t0 == pd.Timestamp("2026-07-14T20:00Z") and w.t1 == pd.Timestamp("2026-07-14T21:00Z")
     assert math.isclose(w.area.area, c.area.area)
+
+
+def test_a_period_touching_the_covered_time_is_outside():
+    # 18:00-19:00Z against coverage from 19:00Z: they share one instant, no time at all.
+    c = _cov()
+    ns = lambda t: np.array([pd.Timestamp(t).value])  # noqa: E731
+    r = check_places(c, [45.5], [-93.0], [1.0], ns("2026-07-14T18:00Z"), ns("2026-07-14T19:00Z"))
+    assert r["coverage"].iloc[0] == "outside" and "before the start" in r["coverage_note"].iloc[0]
+
+
+def test_outage_without_ellipse_asks_for_a_default(example_event, tmp_path, capsys):
+    # A stroke file whose ellipses are blank: the outage verdicts stop and ask, as the site check does.
+    src = pd.read_csv(example_event / "strokes.csv", dtype=str, keep_default_na=False)
+    for c in ("semi_major_km", "semi_minor_km", "major_bearing_deg"):
+        if c in src:
+            src[c] = ""
+    p = tmp_path / "strokes.csv"
+    src.to_csv(p, index=False)
+    args = ["outages", str(p), "--tz", "America/Chicago", "--outages", str(example_event / "outages.csv"),
+            "--lines", str(example_event / "lines.geojson"), "--out", str(tmp_path / "m.csv")]
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert "default_uncertainty_km" in err and "--default-uncertainty-km" in err and "Traceback" not in err
+    assert main(args + ["--default-uncertainty-km", "0.5"]) == 0
+    m = pd.read_csv(tmp_path / "m.csv")
+    assert set(m["location_error"].dropna()) == {"default"}

@@ -322,18 +322,19 @@ def test_parquet_unitless_current_same_rule(tmp_path):
 def test_zero_semi_axis_row_is_kept_without_ellipse_and_counted(tmp_path):
     # 0.0 km is an export rounded to 0.1 km; a location error cannot be zero (constructed here).
     p = write(tmp_path, HEADER + row() + row(t="2026-07-14T19:00:01Z", a=0.0, b=0.0, brg="")
-              + row(t="2026-07-14T19:00:02Z", a=0.3, b=0.0, brg=10.0) + row(t="2026-07-14T19:00:03Z", a=0.2, b=0.1))
+              + row(t="2026-07-14T19:00:02Z", a=0.3, b=0.0, brg=10.0) + row(t="2026-07-14T19:00:03Z", a=0.2, b=0.1)
+              + row(t="2026-07-14T19:00:04Z", a=0.0, b=0.2, brg=10.0))  # a zero major axis is the same case
     df, led = read_strokes(p)
-    assert df["source_row"].tolist() == [2, 3, 4, 5]
-    assert df.loc[[1, 2], ["semi_major_km", "semi_minor_km", "major_bearing_deg"]].isna().all().all()
+    assert df["source_row"].tolist() == [2, 3, 4, 5, 6]
+    assert df.loc[[1, 2, 4], ["semi_major_km", "semi_minor_km", "major_bearing_deg"]].isna().all().all()
     assert df.loc[3, "semi_major_km"] == 0.2 and df.loc[0, "semi_major_km"] == 0.4
-    assert led.rows_accepted == 4 and led.rows_rejected == 0
-    assert led.zero_ellipse == 2 and led.zero_ellipse_lines == [3, 4] and led.missing_ellipse == 2
-    assert any("semi-axis of 0 km" in n and "lines 3, 4" in n for n in led.notes)
-    assert "zero_ellipse" in led.to_text() and "(lines 3, 4)" in led.to_text()
+    assert led.rows_accepted == 5 and led.rows_rejected == 0
+    assert led.zero_ellipse == 3 and led.zero_ellipse_lines == [3, 4, 6] and led.missing_ellipse == 3
+    assert any("semi-axis of 0 km" in n and "lines 3, 4, 6" in n for n in led.notes)
+    assert "zero_ellipse" in led.to_text() and "(lines 3, 4, 6)" in led.to_text()
     d = json.loads(json.dumps(led.to_dict()))
-    assert d["zero_ellipse"] == 2 and d["zero_ellipse_lines"] == [3, 4]
-    assert "2 with a 0 km ellipse axis" in led.one_line()
+    assert d["zero_ellipse"] == 3 and d["zero_ellipse_lines"] == [3, 4, 6]
+    assert "3 with a 0 km ellipse axis" in led.one_line()
     led.check()
 
 

@@ -229,14 +229,23 @@ def test_current_sensitivity_flag():
     assert v["verdict_high_current"] == "direct_strike_likely"
 
 
-def test_no_ellipse_and_no_default_uses_position():
+def test_no_ellipse_and_no_default_asks_for_one():
+    # A reported position without its error would read as certainty: the verdict path stops and
+    # asks for default_uncertainty_km (as the site check does); with it, the default circle applies.
+    from debrief.errors import InputError
+
     line = pd.DataFrame([_line("A")])
     la, lo = _east_of(45.45, -93.20, 10.0)
     strokes = _strokes([(-0.05, la, lo, -30.0, "CG", 0.1)])
     strokes[["semi_major_km", "semi_minor_km", "major_bearing_deg"]] = np.nan
-    r = match_outages(strokes, _outages([("O1", 0.0, "A", np.nan, np.nan, np.nan, ())]), line)
-    assert r.candidates.loc[0, "p_direct"] == 1.0 and r.candidates.loc[0, "location_error"] == "none"
-    assert any("reported position" in n for n in r.notes)
+    o = _outages([("O1", 0.0, "A", np.nan, np.nan, np.nan, ())])
+    with pytest.raises(InputError, match="default_uncertainty_km"):
+        match_outages(strokes, o, line)
+    r = match_outages(strokes, o, line, from_dict({"default_uncertainty_km": 0.5}))
+    assert r.candidates.loc[0, "location_error"] == "default" and r.candidates.loc[0, "p_direct"] < 0.5
+    # The per-stroke physics keeps its documented 0/1 reading for callers that ask for it.
+    phys = stroke_line_physics(strokes, line.iloc[0])
+    assert phys["p_direct"][0] == 1.0 and phys["location_error"][0] == "none"
 
 
 def test_geojson_and_exposure():

@@ -57,6 +57,8 @@ def add_stroke_options(p: argparse.ArgumentParser, *, positional: bool = True) -
                    help="unit of the peak current column; needed when its header states none (such as "
                         "'current' or 'ip') and a value exceeds 1000 in magnitude")
     p.add_argument("--ellipse-confidence", type=float, metavar="P", help="confidence level of the ellipses (default 0.5)")
+    p.add_argument("--default-uncertainty-km", type=float, metavar="KM",
+                   help="circular semi-axis (at the ellipse confidence) for strokes without an ellipse")
     p.add_argument("--strict", action="store_true", help="any rejected row is fatal")
 
 
@@ -67,6 +69,7 @@ def config_from_args(args) -> EventConfig:
         "time_zone": getattr(args, "tz", None),
         "current_unit": getattr(args, "current_unit", None),
         "ellipse_confidence": getattr(args, "ellipse_confidence", None),
+        "default_uncertainty_km": getattr(args, "default_uncertainty_km", None),
         **typed_time_override(args),
     }
     cols = parse_columns(getattr(args, "columns", None))

@@ -34,8 +34,6 @@ def register(subparsers) -> None:
 
 def _common_site_options(p):
     add_stroke_options(p)
-    p.add_argument("--default-uncertainty-km", type=float, metavar="KM",
-                   help="circular semi-axis (at the ellipse confidence) for strokes without an ellipse")
     p.add_argument("--detection-efficiency", type=float, metavar="DE", help="the network's flash detection efficiency (0-1]")
     p.add_argument("--de-source", metavar="TEXT", help="where the detection efficiency comes from (required with it)")
     p.add_argument("--include-likely-ic", action="store_true",
@@ -206,7 +204,9 @@ def run_site(args) -> int:
     if s["coverage_warning"]:
         print(f"Warning: {s['coverage_warning']}")
     print(f"Ellipse confidence {s['ellipse_confidence']:g}; {s['n_ellipse_from_default']} candidate(s) used default_uncertainty_km")
-    print(f"Candidates: {s['n_candidates']} (ground {s['n_ground_candidates']}), ground strokes within the radius: {s['n_ground_within']}")
+    if s["coverage"] != "outside":
+        print(f"Candidates: {s['n_candidates']} (ground {s['n_ground_candidates']}), ground strokes within the radius: "
+              f"{s['n_ground_within']}")
     near = "none" if not np.isfinite(s["nearest_km"]) else f"{s['nearest_km']:.3f} km"
     if s["coverage"] != "outside":
         print(f"Nearest ground stroke: {near}; largest p_within of a ground contact {s['max_p_within']:.4f} "
@@ -273,7 +273,8 @@ def run_sites(args) -> int:
         near = f"{row.nearest_km:8.3f}" if np.isfinite(row.nearest_km) else f"{'-':>8}"
         mp = f"{row.max_p_within:>7.4f}" if np.isfinite(row.max_p_within) else f"{'-':>7}"
         pa = f"{row.p_any_within:>7.4f}" if np.isfinite(row.p_any_within) else f"{'-':>7}"
-        print(f"  {str(row.name)[:32]:<32} {row.radius_km:>5g} {row.coverage:>8} {row.n_ground_within:>6d} {near} {mp} {pa}")
+        within = f"{row.n_ground_within:>6d}" if not pd.isna(row.n_ground_within) else f"{'-':>6}"
+        print(f"  {str(row.name)[:32]:<32} {row.radius_km:>5g} {row.coverage:>8} {within} {near} {mp} {pa}")
         if row.coverage_warning:
             print(f"    warning: {row.coverage_warning}")
     if problems:
@@ -315,9 +316,10 @@ def run_alerts(args) -> int:
     print(f"Alert periods at {len(crew)} site(s): stop radius {a['stop_km']:g} km unless the site sets stop_km"
           + (f", warning radius {a['warn_km']:g} km" if a["warn_km"] else "")
           + f", all-clear {a['all_clear_min']:g} min after the last {'stroke or pulse' if a['include_ic'] else 'ground stroke'}")
+    print(f"Window: {iso_utc(an.start)} to {iso_utc(an.end)}; {an.coverage.describe()}")
     for row in periods.itertuples(index=False):
-        flag = ("  (still open when the data end)" if row.open_at_end else "") + \
-               ("  (may have begun before the data start)" if row.open_at_start else "") + \
+        flag = ("  (still open where the analysis window or the data end)" if row.open_at_end else "") + \
+               ("  (may have begun before the analysis window or the data start)" if row.open_at_start else "") + \
                (f"  [coverage {row.coverage}: {row.coverage_note}]" if row.coverage not in ("inside", "not_checked") else "")
         print(f"  {row.site} [{row.level}] {format_times(row.start, tz)} -> all clear {format_times(row.all_clear, tz)}: "
               f"{row.duration_min:.0f} min, {row.n_strokes} strokes, nearest {row.nearest_km:.2f} km{flag}")

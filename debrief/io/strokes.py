@@ -501,7 +501,8 @@ def convert_chunk(raw, mapping: dict, polarity: str | None, opts: dict, source_r
         a, b = a / 2.0, b / 2.0
     with np.errstate(invalid="ignore"):
         masks["negative_axis"] |= (a < 0) | (b < 0)
-        masks["minor_exceeds_major"] |= b > a
+        # a zero major axis is a rounded-away ellipse (handled below), not a minor larger than it
+        masks["minor_exceeds_major"] |= (b > a) & (a != 0.0)
     if opts["bearing_convention"] == "east_ccw":
         brg = 90.0 - brg
     brg = np.mod(brg, 180.0)  # an axis is undirected: 190 deg is the same axis as 10 deg

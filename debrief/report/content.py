@@ -783,7 +783,7 @@ def alerts_html(results, data: ReportData) -> str:
                  f"and ends {a['all_clear_min']:g} min after the last such stroke (the all-clear).")
     caution = f'<p class="debrief-caution">{esc(alerts.RECORD_NOTE)}</p>'
     tot = html_table(totals, headers={"site": "Site", "level": "Level", "n_periods": "Periods",
-                                      "total_min": "Time in periods, min", "open_at_end": "Still open at end of data"},
+                                      "total_min": "Time in periods, min", "open_at_end": "Still open at end of window or data"},
                      formats={"total_min": ".0f"}, caption="Totals per site")
     if not len(periods):
         return intro + caution + tot + note("No stroke came within any crew site's radius in the window.")
@@ -798,8 +798,8 @@ def alerts_html(results, data: ReportData) -> str:
     table = html_table(shown, columns=list(alerts.PERIOD_COLUMNS),
                        headers={"site": "Site", "level": "Level", "start": "Start (UTC)", "last_stroke": "Last stroke (UTC)",
                                 "all_clear": "All-clear (UTC)", "duration_min": "Duration, min", "n_strokes": "Strokes",
-                                "nearest_km": "Nearest, km", "open_at_end": "Open at end of data",
-                                "open_at_start": "May have begun before the data", "coverage": "Data coverage",
+                                "nearest_km": "Nearest, km", "open_at_end": "Open at end of window or data",
+                                "open_at_start": "May have begun before window or data", "coverage": "Data coverage",
                                 "coverage_note": "Coverage note"},
                      formats={"duration_min": ".0f", "nearest_km": ".2f"}, caption="Alert periods", max_rows=300)
     crew = crew_log_html(comparison, data)
