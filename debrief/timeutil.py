@@ -24,7 +24,7 @@ from .errors import InputError
 
 #: What to do about a typed time that is not ISO 8601 (appended to every such message).
 TYPED_TIME_FIX = ("write ISO 8601 such as 2026-11-01T14:02, or set typed_time_format in event.toml / "
-                  "--typed-time-format, e.g. '%d/%m/%Y %H:%M'")
+                  "--typed-time-format, e.g. '%d/%m/%Y %H:%M' (day first) or '%m/%d/%Y %H:%M' (month first)")
 
 # ISO 8601 calendar date, optionally a time of day (T or a space; minutes, seconds and a
 # fraction optional after HH:MM) and a UTC offset after the time: Z, +HH:MM, +HHMM or +HH.

@@ -115,11 +115,15 @@ def test_sites_reports_bad_rows_and_checks_the_rest(stroke_file, tmp_path, capsy
     code, text, err = run_in(capsys, "sites", stroke_file, "--sites", sites, "--out", out)
     assert code == 0
     assert "line 3" in err and "Broken" in err
-    res = pd.read_csv(out)
-    assert res["name"].tolist() == ["Near", "Far"]
-    assert res["n_ground_within"].iloc[0] == 1
+    res = pd.read_csv(out, keep_default_na=False)
+    # every row of the sites file has a result row, in file order; the unreadable one says why
+    assert res["source_row"].tolist() == [2, 3, 4]
+    assert res["name"].tolist() == ["Near", "", "Far"]
+    assert res["coverage"].tolist() == ["inside", "not_checked", "outside"]
+    assert "Broken" in res["problem"].iloc[1] and res["sentence"].iloc[1].startswith("Not checked")
+    assert res["n_ground_within"].iloc[0] == "1"
     # "Far" is 110 km from every stroke of the file: outside the data's extent, no count at all
-    assert res["coverage"].tolist() == ["inside", "outside"] and pd.isna(res["n_ground_within"].iloc[1])
+    assert res["n_ground_within"].iloc[2] == ""
     assert "Cautions:" in text
     missing = tmp_path / "m.csv"
     missing.write_text("name,lat,lon\nA,1,2\n")

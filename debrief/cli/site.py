@@ -132,6 +132,23 @@ def _print_cautions(cautions):
         print(f"  - {c}")
 
 
+def _with_unchecked_rows(summary: pd.DataFrame, claim: pd.DataFrame, problems) -> pd.DataFrame:
+    """The results table with a row for every sites row that could not be read, in file order:
+    nothing a claim handler sent in goes missing from the results (``coverage`` ``not_checked``,
+    ``problem`` says why)."""
+    out = summary.copy()
+    out.insert(0, "source_row", claim["source_row"].to_numpy())
+    out["problem"] = ""
+    if problems:
+        bad = pd.DataFrame({"source_row": [p.line for p in problems], "coverage": "not_checked",
+                            "problem": [p.message for p in problems],
+                            "sentence": [f"Not checked: {p.message}" for p in problems]})
+        out = pd.concat([out, bad], ignore_index=True).sort_values("source_row", kind="stable").reset_index(drop=True)
+        for c in ("n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "n_set_aside_within"):
+            out[c] = out[c].astype("Int64")
+    return out
+
+
 def _event_window(cfg):
     """The event's analysis window from event.toml (None where unset: the data's extent)."""
     tz, fmt = cfg.time_zone, cfg.get("typed_time_format")
@@ -262,7 +279,7 @@ def run_sites(args) -> int:
         raise InputError(f"no site in {path} has a radius_km to check")
     an = analysis_from_args(args, cfg, include_likely_ic=args.include_likely_ic, detection_efficiency=de, de_source=src)
     summary, cand = an.check_sites(claim, return_candidates=True)
-    write_csv_atomic(args.out, _iso_frame(summary))
+    write_csv_atomic(args.out, _iso_frame(_with_unchecked_rows(summary, claim, problems)))
     if args.candidates_out:
         cols = ["site"] + [c for c in CANDIDATE_COLUMNS if c in cand.columns]
         write_csv_atomic(args.candidates_out, _iso_frame(cand[cols]))
