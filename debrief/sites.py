@@ -270,7 +270,8 @@ class StrokeIndex:
         Cells are at least CONTEXT_KM (+1 %) tall and wide at every latitude of the data (the
         longitude width set at the most poleward stroke), so a circle of CONTEXT_KM about any site
         lies in the 3 x 3 cells about its own. Strokes are sorted by (cell, time). Returns
-        ``(stroke rows, cell ids, cell starts, cell ends, cell height deg, rows, columns)`` or None.
+        ``(stroke rows, cell ids, cell starts, cell ends, cell height deg, rows, columns, latitude,
+        longitude, time ns, |Ip|, cos latitude)`` (the stroke arrays in grid order) or None.
         """
         key = ("grid", bool(include_likely_ic))
         if key not in self._first_ground:
@@ -291,8 +292,10 @@ class StrokeIndex:
             order = np.lexsort((self.t_ns[sel], cid))
             sel, cid = sel[order], cid[order]
             ids, start, counts = np.unique(cid, return_index=True, return_counts=True)
+            s_lat, s_lon = self.lat[sel], self.lon[sel]
             self._first_ground[key] = (sel, ids, start.astype(np.int64), (start + counts).astype(np.int64), dlat,
-                                       n_lat, n_lon)
+                                       n_lat, n_lon, s_lat, s_lon, self.t_ns[sel], np.abs(self.peak_ka[sel]),
+                                       np.cos(np.radians(s_lat)))
         return self._first_ground[key]
 
 
@@ -651,12 +654,9 @@ def _context(index: StrokeIndex, lat, lon, t0, t1, include_likely_ic):
     g = index.ground_grid(include_likely_ic)
     if g is None or n == 0:
         return out
-    sel, cell_ids, c0, c1, dlat, n_lat, n_lon = g
-    s_lat, s_lon, s_t = index.lat[sel], index.lon[sel], index.t_ns[sel]
-    s_abs = np.abs(index.peak_ka[sel])
-    args = (lat, lon, t0, t1, s_lat, s_lon, np.cos(np.radians(s_lat)), s_t, s_abs, cell_ids, c0, c1, dlat, n_lat,
-            n_lon, CONTEXT_KM)
-    (count, big, dmin, d2nd, jmin, _k), bi, bj = _collect(_context_kernel, args, 64 * n + 1024)
+    sel, cell_ids, c0, c1, dlat, n_lat, n_lon, s_lat, s_lon, s_t, s_abs, s_cos = g
+    args = (lat, lon, t0, t1, s_lat, s_lon, s_cos, s_t, s_abs, cell_ids, c0, c1, dlat, n_lat, n_lon, CONTEXT_KM)
+    (count, big, dmin, d2nd, jmin, _k), bi, bj = _collect(_context_kernel, args, 64 * n + 4096)
     if bi.size:  # the pairs near the limit: the geodesic decides
         dg, _ = inverse_km(lat[bi], lon[bi], s_lat[bj], s_lon[bj])
         inside = dg <= CONTEXT_KM
