@@ -534,6 +534,30 @@ def _hav_km(lat1, lon1, lat2, lon2):
 
 
 @njit(cache=True)
+def _cell_spans(lat, lon, t0, t1, s_t, cell_ids, cell_start, cell_end, dlat_deg, n_lat, n_lon):
+    """Row ranges, in the (cell, time)-sorted strokes, of the 3 x 3 cells about a point and the
+    window [t0, t1] (each cell once, also where fewer than 3 columns wrap the globe)."""
+    out = np.zeros((9, 2), np.int64)
+    m = 0
+    lc = int((lat + 90.0) / dlat_deg)
+    oc = int((lon + 180.0) / (360.0 / n_lon)) % n_lon
+    for a in range(lc - 1, lc + 2):
+        if a < 0 or a >= n_lat:
+            continue
+        for bb in range(3 if n_lon >= 3 else n_lon):
+            b = oc - 1 + bb if n_lon >= 3 else bb
+            cid = a * n_lon + (b % n_lon)
+            pos = np.searchsorted(cell_ids, cid)
+            if pos >= cell_ids.size or cell_ids[pos] != cid:
+                continue
+            lo, hi = cell_start[pos], cell_end[pos]
+            out[m, 0] = lo + np.searchsorted(s_t[lo:hi], t0)
+            out[m, 1] = lo + np.searchsorted(s_t[lo:hi], t1, side="right")
+            m += 1
+    return out[:m]
+
+
+@njit(cache=True)
 def _context_kernel(site_lat, site_lon, t0, t1, s_lat, s_lon, s_coslat, s_t, s_abs, cell_ids, cell_start, cell_end,
                     dlat_deg, n_lat, n_lon, limit_km, out_i, out_j):
     """Per site on the mean sphere: the count and largest |Ip| of strokes surely within
@@ -558,44 +582,32 @@ def _context_kernel(site_lat, site_lon, t0, t1, s_lat, s_lon, s_coslat, s_t, s_a
         la, lo_ = site_lat[s], site_lon[s]
         p1 = math.radians(la)
         c1 = math.cos(p1)
-        lc = int((la + 90.0) / dlat_deg)
-        oc = int((lo_ + 180.0) / (360.0 / n_lon)) % n_lon
-        for a in range(lc - 1, lc + 2):
-            if a < 0 or a >= n_lat:
-                continue
-            for bb in range(3 if n_lon >= 3 else n_lon):
-                b = oc - 1 + bb if n_lon >= 3 else bb  # with fewer than 3 columns, each once
-                cid = a * n_lon + (b % n_lon)
-                pos = np.searchsorted(cell_ids, cid)
-                if pos >= cell_ids.size or cell_ids[pos] != cid:
+        spans = _cell_spans(la, lo_, t0[s], t1[s], s_t, cell_ids, cell_start, cell_end, dlat_deg, n_lat, n_lon)
+        for q in range(spans.shape[0]):
+            for j in range(spans[q, 0], spans[q, 1]):
+                if abs(s_lat[j] - la) > lat_lim:
                     continue
-                lo, hi = cell_start[pos], cell_end[pos]
-                i0 = lo + np.searchsorted(s_t[lo:hi], t0[s])
-                i1 = lo + np.searchsorted(s_t[lo:hi], t1[s], side="right")
-                for j in range(i0, i1):
-                    if abs(s_lat[j] - la) > lat_lim:
-                        continue
-                    sp = math.sin(math.radians(s_lat[j] - la) / 2.0)
-                    sl = math.sin(math.radians(s_lon[j] - lo_) / 2.0)
-                    h = sp * sp + c1 * s_coslat[j] * sl * sl
-                    d = 2.0 * MEAN_EARTH_RADIUS_KM * math.asin(math.sqrt(min(max(h, 0.0), 1.0)))
-                    if d > maybe:
-                        continue
-                    if d < dmin[s]:
-                        d2nd[s] = dmin[s]
-                        dmin[s] = d
-                        jmin[s] = j
-                    elif d < d2nd[s]:
-                        d2nd[s] = d
-                    if d <= sure:
-                        count[s] += 1
-                        if s_abs[j] > big[s]:
-                            big[s] = s_abs[j]
-                    else:
-                        if k < cap:
-                            out_i[k] = s
-                            out_j[k] = j
-                        k += 1
+                sp = math.sin(math.radians(s_lat[j] - la) / 2.0)
+                sl = math.sin(math.radians(s_lon[j] - lo_) / 2.0)
+                h = sp * sp + c1 * s_coslat[j] * sl * sl
+                d = 2.0 * MEAN_EARTH_RADIUS_KM * math.asin(math.sqrt(min(max(h, 0.0), 1.0)))
+                if d > maybe:
+                    continue
+                if d < dmin[s]:
+                    d2nd[s] = dmin[s]
+                    dmin[s] = d
+                    jmin[s] = j
+                elif d < d2nd[s]:
+                    d2nd[s] = d
+                if d <= sure:
+                    count[s] += 1
+                    if s_abs[j] > big[s]:
+                        big[s] = s_abs[j]
+                else:
+                    if k < cap:
+                        out_i[k] = s
+                        out_j[k] = j
+                    k += 1
     return count, big, dmin, d2nd, jmin, k
 
 
@@ -606,26 +618,15 @@ def _rivals_kernel(site_lat, site_lon, t0, t1, top, s_lat, s_lon, s_t, cell_ids,
     k = 0
     cap = out_i.size
     for s in range(site_lat.size):
-        lc = int((site_lat[s] + 90.0) / dlat_deg)
-        oc = int((site_lon[s] + 180.0) / (360.0 / n_lon)) % n_lon
-        for a in range(lc - 1, lc + 2):
-            if a < 0 or a >= n_lat:
-                continue
-            for bb in range(3 if n_lon >= 3 else n_lon):
-                b = oc - 1 + bb if n_lon >= 3 else bb
-                cid = a * n_lon + (b % n_lon)
-                pos = np.searchsorted(cell_ids, cid)
-                if pos >= cell_ids.size or cell_ids[pos] != cid:
-                    continue
-                lo, hi = cell_start[pos], cell_end[pos]
-                i0 = lo + np.searchsorted(s_t[lo:hi], t0[s])
-                i1 = lo + np.searchsorted(s_t[lo:hi], t1[s], side="right")
-                for j in range(i0, i1):
-                    if _hav_km(site_lat[s], site_lon[s], s_lat[j], s_lon[j]) <= top[s]:
-                        if k < cap:
-                            out_i[k] = s
-                            out_j[k] = j
-                        k += 1
+        spans = _cell_spans(site_lat[s], site_lon[s], t0[s], t1[s], s_t, cell_ids, cell_start, cell_end, dlat_deg,
+                            n_lat, n_lon)
+        for q in range(spans.shape[0]):
+            for j in range(spans[q, 0], spans[q, 1]):
+                if _hav_km(site_lat[s], site_lon[s], s_lat[j], s_lon[j]) <= top[s]:
+                    if k < cap:
+                        out_i[k] = s
+                        out_j[k] = j
+                    k += 1
     return k
 
 

@@ -657,18 +657,20 @@ def outages_html(result) -> str:
         return note("The outage log has no rows.")
     v["time"] = [_iso(t) if pd.notna(t) else "" for t in v["time"]]
     v["best_stroke_time"] = [time_ms(t) for t in v.get("best_stroke_time", [pd.NaT] * len(v))]
-    cols = [c for c in ["outage_id", "line_id", "time", "verdict", "coverage", "n_candidates", "n_contacts", "best_stroke_time",
+    # The best stroke's time is in the reasons below (to the microsecond); the table keeps to what fits on paper.
+    cols = [c for c in ["outage_id", "line_id", "time", "verdict", "coverage", "n_candidates", "n_contacts",
                         "best_peak_current_ka", "best_dt_s", "best_distance_m", "best_p_within_corridor",
                         "best_p_direct", "best_p_induced_fo", "current_sensitive"] if c in v]
     table = html_table(v, columns=cols, headers={
         "outage_id": "Outage", "line_id": "Line", "time": "Time (UTC)", "verdict": "Verdict",
-        "coverage": "Data coverage", "n_contacts": "Ground contacts",
+        "coverage": "Cover\u00adage", "n_contacts": "Con\u00adtacts",
         "n_candidates": "Candi\u00addates", "best_stroke_time": "Best stroke (UTC)", "best_peak_current_ka": "Ip, kA",
-        "best_dt_s": "dt, s", "best_distance_m": "To line, m", "best_p_within_corridor": "P(corridor), contact",
-        "best_p_direct": "P(direct), contact", "best_p_induced_fo": "P(induced), contact", "current_sensitive": "Changes at ±30 % Ip"},
+        "best_dt_s": "dt, s", "best_distance_m": "To line, m", "best_p_within_corridor": "P(corridor)",
+        "best_p_direct": "P(direct)", "best_p_induced_fo": "P(induced)", "current_sensitive": "Changes at ±30 % Ip"},
         formats={"best_peak_current_ka": ".1f", "best_dt_s": ".2f", "best_distance_m": ".0f",
                  "best_p_within_corridor": ".3f", "best_p_direct": ".3f", "best_p_induced_fo": ".3f"},
-        caption="Verdict per outage", css_class="debrief-table debrief-outages")
+        caption="Verdict per outage (probabilities of the best ground contact: its strokes combined into one fix)",
+        css_class="debrief-table debrief-outages")
     if "reasons" in v:
         table += "".join(f'<p class="debrief-sentence"><strong>{esc(o)} ({esc(ln)}):</strong> {esc(r)}</p>'
                          for o, ln, r in zip(v["outage_id"], v["line_id"], v["reasons"]) if isinstance(r, str) and r)
