@@ -257,7 +257,7 @@ def _ts(v):
 
 
 def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=None, tolerance_min: float = 1.0,
-                     sites=None, data_start=None) -> pd.DataFrame:
+                     sites=None, data_start=None, all_clear_min: float | None = None) -> pd.DataFrame:
     """Where work went on inside a stop period, or stopped outside one.
 
     Parameters
@@ -272,6 +272,9 @@ def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=
     data_start : Timestamp, optional
         Start of the data or of the analysis window: before it nothing is known, so both the
         periods and the logged stops are compared from there on.
+    all_clear_min : float, optional
+        With `data_start`: for this long after it a stop period may still be running from strokes
+        before it, so a logged stop there is not called "outside" one.
     tolerance_min : float
         Pieces shorter than this are not listed (typed times carry minutes only).
     sites : sequence of str, optional
@@ -312,6 +315,8 @@ def compare_crew_log(periods: pd.DataFrame, crew_log: pd.DataFrame, *, data_end=
         # A period that may have begun before the data start: a stop logged before its first seen
         # stroke is not "outside" it (unknown, not a finding).
         p_iv_stop = [(start_ns if e else a, b) for a, b, e in seen]
+        if data_start is not None and all_clear_min:
+            p_iv_stop.append((start_ns, start_ns + int(all_clear_min * 60e9)))
         c_iv = [(max(a.value, start_ns), min(b.value if b is not pd.NaT and not pd.isna(b) else end_ns, end_ns))
                 for a, b in zip(c["stopped"], c["resumed"])]
         keep = [k for k, (a, b) in enumerate(c_iv) if b > a]

@@ -199,7 +199,8 @@ class Analysis:
             comparison = None
             if log is not None:
                 comparison = alerts.compare_crew_log(periods, log, data_end=self.coverage.t1,
-                                                     data_start=self.coverage.t0, sites=list(crew["name"].astype(str)))
+                                                     data_start=self.coverage.t0, sites=list(crew["name"].astype(str)),
+                                                     all_clear_min=float(self.config["alerts"]["all_clear_min"]))
             return periods, totals, comparison
         return self._cached(key, make)
 
@@ -250,8 +251,9 @@ def analyse(event, start=None, end=None, *, include_likely_ic: bool = False, det
     detection_efficiency, de_source : optional
         Override the event's flash detection efficiency and its source.
     """
-    a = event.start if start is None else pd.Timestamp(start)
-    b = event.end if end is None else pd.Timestamp(end)
+    # Without a stated window, the data's extent to the minute (the same span as its coverage).
+    a = (event.start if event.config.get("start") else event.start.floor("min")) if start is None else pd.Timestamp(start)
+    b = (event.end if event.config.get("end") else event.end.ceil("min")) if end is None else pd.Timestamp(end)
     if b < a:  # equal is allowed: a file of one stroke has a window of one instant
         raise InputError(f"the window's end ({iso_utc(b)}) is before its start ({iso_utc(a)})")
     cov = _coverage_of(event).with_window(a, b)

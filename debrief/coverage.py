@@ -261,7 +261,9 @@ def check_places(coverage: Coverage, lat_deg, lon_deg, radius_km, start=None, en
     DataFrame
         ``coverage`` (inside/partial/outside), ``coverage_source`` (``declared`` when both the time and
         the area are declared, else ``data_extent``), ``coverage_time_source``,
-        ``coverage_area_source``, ``coverage_note`` (plain words,
+        ``coverage_area_source``, ``coverage_limit`` (``window`` when only the analysis window cuts
+        the question, which the data may still answer; ``data`` otherwise; empty inside),
+        ``coverage_note`` (plain words,
         empty when inside), ``uncovered_area_share`` (0-1), ``outside_km`` (distance of the centre
         outside the area, 0 inside), ``coverage_warning`` (a likely mistake, or empty).
     """
@@ -293,6 +295,10 @@ def check_places(coverage: Coverage, lat_deg, lon_deg, radius_km, start=None, en
         covered = shapely.area(shapely.intersection(circles, area_xy)) / shapely.area(circles)
         share[part] = np.clip(1.0 - covered, 0.0, 1.0)
     state = np.where(t_out | p_out, "outside", np.where(t_in & p_in, "inside", "partial")).astype(object)
+    # What limits the answer: the analysis window alone (the data may hold more), or the data.
+    d0, d1 = coverage.start.value, coverage.end.value
+    data_t_in = (t0 >= d0) & (t1 <= d1)
+    limit = np.where(~p_in, "data", np.where(t_in, "", np.where(data_t_in, "window", "data"))).astype(object)
     notes, warns = [], []
     for i in range(n):
         parts = []
@@ -319,6 +325,7 @@ def check_places(coverage: Coverage, lat_deg, lon_deg, radius_km, start=None, en
     return pd.DataFrame({
         "coverage": state, "coverage_source": coverage.source, "coverage_time_source": coverage.time_source,
         "coverage_area_source": coverage.area_source, "coverage_note": notes,
+        "coverage_limit": limit,
         "uncovered_area_share": share, "outside_km": np.where(contained, 0.0, d_edge),
         "coverage_warning": warns,
     })

@@ -787,7 +787,11 @@ def _clock(ts: pd.Timestamp, tz) -> str:
 
 def _when(t0: pd.Timestamp, t1: pd.Timestamp, tz) -> str:
     if t0 == t1:
-        return f"at {_clock(t0, tz)} on {pd.Timestamp(t0).tz_convert('UTC'):%Y-%m-%d} (UTC date)"
+        z = zone(tz)
+        t = pd.Timestamp(t0).tz_convert("UTC")
+        if z is None or tz == "UTC":
+            return f"at {t:%Y-%m-%d %H:%M:%S} UTC"
+        return f"at {t.tz_convert(z):%Y-%m-%d %H:%M:%S %Z} ({t:%Y-%m-%d %H:%M:%S} UTC)"
     z = zone(tz)
     a, b = t0.tz_convert("UTC"), t1.tz_convert("UTC")
     utc = f"{a:%Y-%m-%d %H:%M} and {b:%H:%M} UTC" if a.date() == b.date() else f"{a:%Y-%m-%d %H:%M} and {b:%Y-%m-%d %H:%M} UTC"
@@ -815,12 +819,18 @@ def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t
     when = _when(t0, t1, tz)
     cov = summ.get("coverage", "inside")
     cov_note = summ.get("coverage_note", "")
+    by_window = summ.get("coverage_limit") == "window"
+    if cov == "outside" and by_window:
+        text = (f"No conclusion for {name} within {r} {when} in this analysis: the period lies outside the analysis "
+                f"window; {cov_note}. Analyse a window that holds it (the stroke data may cover it).")
+        return text + (f" Note: {summ['coverage_warning']}" if summ.get("coverage_warning") else "")
     if cov == "outside":
         text = (f"No conclusion for {name} within {r} {when}: the place or period lies outside the data's coverage; "
                 f"{cov_note}. The stroke data cannot show whether lightning struck there or not.")
         return text + (f" Note: {summ['coverage_warning']}" if summ.get("coverage_warning") else "")
     extra = " (low-amplitude positive reports included)" if include_likely_ic else ""
-    part = " in the part of it the data cover" if cov == "partial" else ""
+    part = ((" in the part of it inside the analysis window" if by_window else " in the part of it the data cover")
+            if cov == "partial" else "")
     n = int(summ["n_ground_within"])
     if n:
         lead = f"{n} ground stroke{'s were' if n > 1 else ' was'}{extra} located within {r} of {name} {when}{part}"
@@ -850,7 +860,7 @@ def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t
                  f"lie within the radius with a probability of {percent(summ['set_aside_p_within'])}.")
     if summ.get("n_ground_within_context", 0):
         near = summ["nearest_ground_km"]
-        text += (f" The nearest ground stroke in the period was {_km(near)} to the "
+        text += (f" The nearest single reported ground stroke position in the period was {_km(near)} to the "
                  f"{compass_point(summ['nearest_ground_bearing_deg'])} ({_signed_ka(summ['nearest_ground_peak_ka'])}); "
                  f"the largest |peak current| within {CONTEXT_KM:g} km was {summ['max_abs_peak_ka_context']:.0f} kA.")
     else:
@@ -858,7 +868,10 @@ def _sentence(name, radius, summ: dict, best: dict | None, resid: dict | None, t
     if parcel is not None and math.isfinite(summ.get("parcel_area_km2", float("nan"))):
         text += (f" For the parcel ({summ['parcel_area_km2']:.3g} km\u00b2) the probability that at least one "
                  f"ground contact terminated on it is {percent(summ['p_any_within_parcel'])}.")
-    if cov == "partial":
+    if cov == "partial" and by_window:
+        text += (f" Part of the period is outside the analysis window ({cov_note}); this analysis draws no conclusion "
+                 "for that part, and the chance of an unrecorded flash is not stated.")
+    elif cov == "partial":
         text += (f" Part of the question is outside the data's coverage ({cov_note}); for that part there is no "
                  "conclusion, and the chance of an unrecorded flash is not stated.")
     elif resid is not None:
@@ -973,7 +986,7 @@ def check_site(strokes, lat_deg, lon_deg, radius_km, *, start=None, end=None, co
 #: Summary columns of :func:`check_sites`, in order.
 SITES_COLUMNS = (
     "name", "latitude", "longitude", "radius_km", "start", "end", "searched_start", "searched_end", "coverage",
-    "coverage_source", "coverage_time_source", "coverage_area_source", "coverage_note",
+    "coverage_source", "coverage_time_source", "coverage_area_source", "coverage_limit", "coverage_note",
     "coverage_warning", "n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "nearest_km",
     "max_p_within", "max_p_within_stroke", "p_any_within", "p_unrecorded", "p_unrecorded_upper",
     "n_set_aside_within", "set_aside_nearest_km", "set_aside_peak_ka", "nearest_ground_km",
@@ -981,8 +994,8 @@ SITES_COLUMNS = (
 )
 
 
-_COVERAGE_FIELDS = ("coverage", "coverage_source", "coverage_time_source", "coverage_area_source", "coverage_note",
-                    "coverage_warning")
+_COVERAGE_FIELDS = ("coverage", "coverage_source", "coverage_time_source", "coverage_area_source", "coverage_limit",
+                    "coverage_note", "coverage_warning")
 _SUMMARY_COUNTS = ("n_candidates", "n_ground_candidates", "n_ground_within", "n_contacts", "n_set_aside_within",
                    "n_ground_within_context")
 _SUMMARY_FIGURES = ("nearest_km", "set_aside_nearest_km", "set_aside_peak_ka", "set_aside_p_within", "nearest_ground_km",
@@ -1138,6 +1151,17 @@ def _run(index, cindex, sites, config, include_likely_ic, detection_efficiency, 
                                     minlength=n)
     for c in _COVERAGE_FIELDS:
         summ[c] = cov[c].to_numpy() if cov is not None else {"coverage": "inside"}.get(c, "not_checked" if "source" in c else "")
+    if parcels:  # a site point off its own parcel is a likely mistake in one of the two
+        import shapely
+
+        warn = summ["coverage_warning"].to_numpy().astype(object)
+        for i, (polys, _extent) in parcels.items():
+            off_km = float(shapely.distance(shapely.Point(0.0, 0.0), shapely.MultiPolygon(polys)))
+            if off_km > 0.005:
+                w = (f"the site point lies {1000.0 * off_km:.0f} m outside its parcel: check the site's coordinates "
+                     "or the parcel file")
+                warn[i] = f"{warn[i]} {w[0].upper()}{w[1:]}" if warn[i] else w
+        summ["coverage_warning"] = warn
     tz = config.time_zone if config is not None else None
     return _Run(index=index, cand=cand, ccand=ccand, summ=summ, resid=resid, sites=sites, lat=lat, lon=lon,
                 radius=radius, t0=asked[0], t1=asked[1], s0=t0, s1=t1,

@@ -119,7 +119,7 @@ def test_site_row_with_day_first_window_is_skipped_with_its_line(tmp_path):
     assert (f"debrief sites: {sites}, line 3: site 'Barn' start: '14/07/2026' is not an ISO 8601 time; "
             f"{TYPED_TIME_FIX} (row skipped)") in p.stderr
     o = pd.read_csv(tmp_path / "o.csv", keep_default_na=False)
-    assert o["name"].tolist() == ["Farm", ""] and o["coverage"].tolist()[1] == "not_checked"
+    assert o["name"].tolist() == ["Farm", "Barn"] and o["coverage"].tolist()[1] == "not_checked"
     assert "'14/07/2026' is not an ISO 8601 time" in o["problem"].iloc[1]  # the skipped row keeps its place
     p = run(*args, "--typed-time-format", "%d/%m/%Y")
     assert p.returncode == 0, p.stderr

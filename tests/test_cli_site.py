@@ -118,7 +118,7 @@ def test_sites_reports_bad_rows_and_checks_the_rest(stroke_file, tmp_path, capsy
     res = pd.read_csv(out, keep_default_na=False)
     # every row of the sites file has a result row, in file order; the unreadable one says why
     assert res["source_row"].tolist() == [2, 3, 4]
-    assert res["name"].tolist() == ["Near", "", "Far"]
+    assert res["name"].tolist() == ["Near", "Broken", "Far"]
     assert res["coverage"].tolist() == ["inside", "not_checked", "outside"]
     assert "Broken" in res["problem"].iloc[1] and res["sentence"].iloc[1].startswith("Not checked")
     assert res["n_ground_within"].iloc[0] == "1"

@@ -190,3 +190,44 @@ def test_outage_without_ellipse_asks_for_a_default(example_event, tmp_path, caps
     assert main(args + ["--default-uncertainty-km", "0.5"]) == 0
     m = pd.read_csv(tmp_path / "m.csv")
     assert set(m["location_error"].dropna()) == {"default"}
+
+
+def test_a_period_cut_by_the_window_alone_says_so(example_event, tmp_path, capsys):
+    # The window ends at 21:00Z while the strokes run to 23:00Z: a claim at 17:00-18:00 CDT is
+    # outside this analysis, not outside the data; the sentence must not say the data cannot tell.
+    d = tmp_path / "ev"
+    shutil.copytree(example_event, d)
+    (d / "event.toml").write_text((d / "event.toml").read_text().replace('end = "2026-07-14T23:00:00Z"',
+                                                                        'end = "2026-07-14T21:00:00Z"'))
+    code = main(["site", str(d / "strokes.csv"), "--event", str(d), "--lat", str(MILLRACE[0]), "--lon", str(MILLRACE[1]),
+                 "--radius-km", "0.5", "--start", "2026-07-14 17:00", "--end", "2026-07-14 18:00", "--json"])
+    out = json.loads(capsys.readouterr().out)
+    assert code == 0 and out["coverage"] == "outside" and out["coverage_limit"] == "window"
+    assert "outside the analysis window" in out["sentence"] and "cannot show" not in out["sentence"]
+    code = main(["site", str(d / "strokes.csv"), "--event", str(d), "--lat", str(MILLRACE[0]), "--lon", str(MILLRACE[1]),
+                 "--radius-km", "0.5", "--start", "2026-07-14 15:00", "--end", "2026-07-14 17:00", "--json"])
+    out = json.loads(capsys.readouterr().out)
+    assert out["coverage"] == "partial" and out["coverage_limit"] == "window"
+    assert "inside the analysis window" in out["sentence"] and out["searched_end"] == "2026-07-14T21:00:00Z"
+
+
+def test_a_site_off_its_own_parcel_is_named(example_event, capsys):
+    # The example's Millrace Cottage point (sites.csv) lies about 60 m east of its parcel outline.
+    code = main(["site", str(example_event / "strokes.csv"), "--event", str(example_event), "--lat", str(MILLRACE[0]),
+                 "--lon", str(MILLRACE[1]), "--radius-km", "0.5", "--parcel", str(example_event / "parcel_millrace.geojson"),
+                 "--json"])
+    out = json.loads(capsys.readouterr().out)
+    assert code == 0 and "m outside its parcel" in out["coverage_warning"]
+
+
+def test_a_missing_parcel_file_is_one_unchecked_row(example_event, tmp_path):
+    sites = tmp_path / "claims.csv"
+    sites.write_text("name,latitude,longitude,radius_km,parcel_file\n"
+                     "Good,45.4770,-93.2450,0.5,\n"
+                     "No outline,45.4770,-93.2450,0.5,nope.geojson\n")
+    out = tmp_path / "r.csv"
+    assert main(["sites", str(example_event / "strokes.csv"), "--event", str(example_event), "--sites", str(sites),
+                 "--out", str(out)]) == 0
+    r = pd.read_csv(out, keep_default_na=False)
+    assert r["name"].tolist() == ["Good", "No outline"] and r["coverage"].tolist() == ["inside", "not_checked"]
+    assert "parcel file not found" in r["problem"].iloc[1]

@@ -104,7 +104,12 @@ def window_from_args(args, cfg: EventConfig):
     start = parse_user_time(start_text, tz, what="start", time_format=fmt) if start_text else None
     end = parse_user_time(end_text, tz, what="end", time_format=fmt) if end_text else None
     if start is not None and end is not None and end <= start:
-        raise InputError(f"end ({end_text}) is not after start ({start_text})")
+        def said(text, given, opt):
+            src = f"{opt}" if given else f"event.toml {opt.lstrip('-')}"
+            return f"{src} {text!r} ({end.strftime('%Y-%m-%dT%H:%M:%SZ') if opt == '--end' else start.strftime('%Y-%m-%dT%H:%M:%SZ')})"
+        fix = "" if getattr(args, "end", None) else "; give --end as well"
+        raise InputError(f"the window's end, {said(end_text, getattr(args, 'end', None), '--end')}, is not after its "
+                         f"start, {said(start_text, getattr(args, 'start', None), '--start')}{fix}")
     return start, end
 
 

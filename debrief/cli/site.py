@@ -140,7 +140,8 @@ def _with_unchecked_rows(summary: pd.DataFrame, claim: pd.DataFrame, problems) -
     out.insert(0, "source_row", claim["source_row"].to_numpy())
     out["problem"] = ""
     if problems:
-        bad = pd.DataFrame({"source_row": [p.line for p in problems], "coverage": "not_checked",
+        bad = pd.DataFrame({"source_row": [p.line for p in problems], "name": [p.item_id for p in problems],
+                            "coverage": "not_checked",
                             "problem": [p.message for p in problems],
                             "sentence": [f"Not checked: {p.message}" for p in problems]})
         out = pd.concat([out, bad], ignore_index=True).sort_values("source_row", kind="stable").reset_index(drop=True)
@@ -215,9 +216,13 @@ def run_site(args) -> int:
     s = res.summary
     tz = cfg.time_zone
     print(f"Site check: {res.name} ({s['latitude']:.5f}, {s['longitude']:.5f}), radius {s['radius_km']:g} km")
-    print(f"Window: {format_times(s['start'], tz)} to {format_times(s['end'], tz)}")
+    print(f"Claim period: {format_times(s['start'], tz)} to {format_times(s['end'], tz)}")
+    searched = (f"{format_times(s['searched_start'], tz)} to {format_times(s['searched_end'], tz)}"
+                if s["searched_start"] is not pd.NaT else "nothing (outside the coverage)")
+    print(f"Searched: {searched}; analysis window {iso_utc(an.start)} to {iso_utc(an.end)}")
     cov = {"inside": "inside", "partial": "PARTIAL", "outside": "OUTSIDE (no conclusion)"}.get(s["coverage"], s["coverage"])
-    print(f"Coverage: {cov} ({s['coverage_source']})" + (f": {s['coverage_note']}" if s["coverage_note"] else ""))
+    print(f"Coverage: {cov} (time {s['coverage_time_source']}, area {s['coverage_area_source']})"
+          + (f": {s['coverage_note']}" if s["coverage_note"] else ""))
     if s["coverage_warning"]:
         print(f"Warning: {s['coverage_warning']}")
     print(f"Ellipse confidence {s['ellipse_confidence']:g}; {s['n_ellipse_from_default']} candidate(s) used default_uncertainty_km")

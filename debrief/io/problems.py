@@ -46,7 +46,7 @@ class Problem:
         return self.message
 
     def text(self) -> str:
-        ident = f" ({self.item_id})" if self.item_id else ""
+        ident = f" ({self.item_id})" if self.item_id and repr(self.item_id) not in self.message else ""  # said once
         return f"{self.file}, {self.where}{ident}: {self.message}"
 
     __str__ = text

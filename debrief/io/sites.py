@@ -86,7 +86,7 @@ def read_sites(path, *, time_zone: str | None = None, time_format: str | None = 
         try:
             rows.append(_site_row(rec, line, time_zone, p.parent, time_format))
         except (ValueError, InputError) as e:
-            problems.append(Problem.at_line(str(p), line, str(e)))
+            problems.append(Problem.at_line(str(p), line, str(e), item_id=str(rec.get("name", "") or "").strip()))
     cols = ["name", "latitude", "longitude", "radius_km", "stop_km", "warn_km", "start", "end", "parcel_file", "source_row"]
     sites = pd.DataFrame(rows, columns=cols)
     for c in ("latitude", "longitude", "radius_km", "stop_km", "warn_km"):
@@ -127,6 +127,8 @@ def _site_row(rec: dict, line: int, tz, folder: Path, time_format=None) -> dict:
     parcel = rec.get("parcel_file", "").strip()
     if parcel and not Path(parcel).is_absolute():
         parcel = str(folder / parcel)
+    if parcel and not Path(parcel).is_file():  # one missing outline must not stop every other site's check
+        raise ValueError(f"site {out['name']!r}: parcel file not found: {parcel}")
     out["parcel_file"] = parcel
     return out
 

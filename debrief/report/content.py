@@ -696,10 +696,17 @@ def site_results(data: ReportData):
     per_site : list of (site row, candidates DataFrame, parcel outline or None)
     """
     summary, cand = data.analysis.site_results
+    bad = [p for role, p in data.problems if role == "sites"]
+    if bad:  # a claim that could not be read is listed too: not checked, and why
+        summary = pd.concat([summary, pd.DataFrame({
+            "name": [p.item_id or f"line {p.line}" for p in bad], "coverage": "not_checked",
+            "sentence": [f"Not checked: {p.message} ({p.file}, line {p.line})." for p in bad]})], ignore_index=True)
     per_site = []
     claims = data.analysis.claim_sites()
     parcels = claims["parcel_file"].fillna("").astype(str).tolist() if "parcel_file" in claims else [""] * len(claims)
     for i, row in summary.iterrows():
+        if row["coverage"] == "not_checked":
+            continue
         c = cand[cand["site"].astype(str).to_numpy() == str(row["name"])] if len(cand) else cand
         parcel = None
         if i < len(parcels) and parcels[i]:
@@ -724,8 +731,9 @@ def sites_summary_html(summary: pd.DataFrame) -> str:
     if not len(summary):
         return note("No site in the sites file has a search radius (radius_km).")
     s = summary.copy()
-    s["start"] = [time_ms(t)[:-5] + "Z" if pd.notna(t) else "open" for t in s["start"]]
-    s["end"] = [time_ms(t)[:-5] + "Z" if pd.notna(t) else "open" for t in s["end"]]
+    read = (s["coverage"] != "not_checked").to_numpy() if "coverage" in s else np.ones(len(s), bool)
+    for c in ("start", "end"):
+        s[c] = [time_ms(t)[:-5] + "Z" if pd.notna(t) else ("open" if ok else "–") for t, ok in zip(s[c], read)]
     for c in ("max_p_within", "p_any_within", "p_unrecorded"):
         if c in s:
             s[c] = [_pct(v) if pd.notna(v) else "–" for v in s[c]]
@@ -895,7 +903,7 @@ def window_coverage_html(data: ReportData) -> str:
     a = data.analysis
     rows = [("Analysis window (UTC)", f"{_iso(a.start)} to {_iso(a.end)}"),
             ("Window rule", WINDOW_RULE),
-            ("Data coverage", a.coverage.describe()),
-            ("Coverage source", a.coverage.source),
+            ("Coverage", a.coverage.describe()),
+            ("Coverage source", f"{a.coverage.source} (time {a.coverage.time_source}, area {a.coverage.area_source})"),
             ("Ground contacts", INDEPENDENCE_NOTE)]
     return kv_table(rows)
