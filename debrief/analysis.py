@@ -132,18 +132,13 @@ class Analysis:
 
         `start`/`end` (UTC Timestamps) are the claim period; None means the window.
         """
-        from .sites import _run
+        from .sites import check_site
 
         inc = self.include_likely_ic if include_likely_ic is None else bool(include_likely_ic)
-        if start is not None and end is not None and pd.Timestamp(end) <= pd.Timestamp(start):
-            raise InputError("the period's end is not after its start")
-        sites = pd.DataFrame({"name": [name], "latitude": [float(lat_deg)], "longitude": [float(lon_deg)],
-                              "radius_km": [float(radius_km)],
-                              "start": [pd.Timestamp(start) if start is not None else pd.NaT],
-                              "end": [pd.Timestamp(end) if end is not None else pd.NaT]})
-        run = _run(self.stroke_index, self.contact_index(inc), sites, self.config, inc, self.detection_efficiency,
-                   self.de_source, self.coverage, parcels_given={0: parcel} if parcel is not None else None)
-        return run.result(0, with_tables=True)
+        return check_site(None, lat_deg, lon_deg, radius_km, start=start, end=end, config=self.config, parcel=parcel,
+                          include_likely_ic=inc, detection_efficiency=self.detection_efficiency,
+                          de_source=self.de_source, name=name, index=self.stroke_index,
+                          contact_index=self.contact_index(inc), coverage=self.coverage)
 
     def check_sites(self, sites: pd.DataFrame, *, return_candidates: bool = False, sentences: bool = True):
         """:func:`debrief.sites.check_sites` for the claim rows of `sites`, under the window rule."""

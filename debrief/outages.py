@@ -426,7 +426,7 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
         cov_state[out_w] = "outside"
         cov_note[out_w] = "the trip is outside the analysis window"
     if coverage is not None and len(outages):
-        from .coverage import check_lines, combine
+        from .coverage import check_lines, check_span, combine
 
         by_line = check_lines(coverage, lines, lc["search_km"]).set_index("line_id") if len(lines) else None
         tol = outages["clock_tolerance_s"].to_numpy(float)
@@ -436,7 +436,7 @@ def match_outages(strokes: pd.DataFrame, outages: pd.DataFrame, lines: pd.DataFr
                 continue
             a = t_trip.iloc[i] - pd.Timedelta(seconds=float(tol[i]))
             b = t_trip.iloc[i] + pd.Timedelta(seconds=float(tol[i]))
-            state, note_ = _span_state(coverage, a, b)
+            state, note_ = check_span(coverage, a, b)
             lid = outages["line_id"].iloc[i]
             if by_line is not None and lid in by_line.index:
                 ls, ln = by_line.loc[lid, "coverage"], by_line.loc[lid, "coverage_note"]
@@ -565,12 +565,6 @@ def _evaluate_pairs(po, ps, og, li, lines, strokes, t_all, config, lc, has_fault
     return c.drop(columns=["_abs_dt", "_p"]).reset_index(drop=True)
 
 
-def _span_state(coverage, a, b):
-    from .coverage import check_span
-
-    return check_span(coverage, a, b)
-
-
 _CONTACT_P = ("p_within_corridor", "p_direct", "p_induced_fo", "p_direct_low_current", "p_induced_fo_low_current",
               "p_direct_high_current", "p_induced_fo_high_current")
 
@@ -595,7 +589,10 @@ def _contact_probabilities(c: pd.DataFrame, strokes: pd.DataFrame, lines: pd.Dat
                            if "ground_contact" in strokes else 0)
     have = c["ground_contact"].to_numpy() > 0
     if np.any(have):
-        contacts = contact_fixes(strokes, config, include_likely_ic=True)
+        # Only the candidates' contacts (all their strokes), not every contact of the file.
+        fid_all = strokes["flash_id"].to_numpy(np.int64)
+        mine = np.isin(fid_all, pd.to_numeric(c["flash_id"].to_numpy()[have]).astype(np.int64))
+        contacts = contact_fixes(strokes[mine], config, include_likely_ic=True)
         key = contacts["flash_id"].to_numpy(np.int64) * (1 << 20) + contacts["ground_contact"].to_numpy(np.int64)
         pos_of = pd.Series(np.arange(len(contacts)), index=key)
         rows = np.flatnonzero(have)

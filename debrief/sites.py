@@ -215,7 +215,7 @@ class StrokeIndex:
                 if members.size:
                     self.tiers.append((members, cKDTree(xyz[members]), float(top)))
         self.tree = bool(self.tiers)
-        self._first_ground = {}
+        self._cache = {}  # first ground strokes, the neighbourhood grid
 
     def pairs(self, lat_deg, lon_deg, base_km):
         """(site index, stroke index) of strokes whose reported position is within about
@@ -255,14 +255,14 @@ class StrokeIndex:
     def first_ground(self, include_likely_ic: bool):
         """Indices of the first eligible ground stroke of every flash (for flash densities)."""
         key = bool(include_likely_ic)
-        if key not in self._first_ground:
+        if key not in self._cache:
             ok = self.is_cg & (key | ~self.likely_ic)
             idx = np.flatnonzero(ok)
             _, first = np.unique(self.flash_id[idx], return_index=True)
             sel = idx[first]
             tree = cKDTree(_unit_vectors(self.lat[sel], self.lon[sel])) if sel.size else None
-            self._first_ground[key] = (sel, tree)
-        return self._first_ground[key]
+            self._cache[key] = (sel, tree)
+        return self._cache[key]
 
     def ground_grid(self, include_likely_ic: bool):
         """Eligible ground strokes on a latitude/longitude grid (for the neighbourhood search).
@@ -274,10 +274,10 @@ class StrokeIndex:
         longitude, time ns, |Ip|, cos latitude)`` (the stroke arrays in grid order) or None.
         """
         key = ("grid", bool(include_likely_ic))
-        if key not in self._first_ground:
+        if key not in self._cache:
             sel = np.flatnonzero(self.is_cg & (bool(include_likely_ic) | ~self.likely_ic))
             if not sel.size:
-                self._first_ground[key] = None
+                self._cache[key] = None
                 return None
             km = CONTEXT_KM * 1.01 + 0.05
             dlat = km / 110.5
@@ -293,10 +293,10 @@ class StrokeIndex:
             sel, cid = sel[order], cid[order]
             ids, start, counts = np.unique(cid, return_index=True, return_counts=True)
             s_lat, s_lon = self.lat[sel], self.lon[sel]
-            self._first_ground[key] = (sel, ids, start.astype(np.int64), (start + counts).astype(np.int64), dlat,
+            self._cache[key] = (sel, ids, start.astype(np.int64), (start + counts).astype(np.int64), dlat,
                                        n_lat, n_lon, s_lat, s_lon, self.t_ns[sel], np.abs(self.peak_ka[sel]),
                                        np.cos(np.radians(s_lat)))
-        return self._first_ground[key]
+        return self._cache[key]
 
 
 def _time_ns(s: pd.Series) -> np.ndarray:

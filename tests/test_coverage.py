@@ -139,17 +139,22 @@ def test_dropped_minus_sign_names_the_mistake(example_event, capsys):
     assert code == 0 and "sign flipped" in out and "OUTSIDE (no conclusion)" in out
 
 
-def test_every_sites_row_carries_coverage(example_event, tmp_path):
+def _sites_results(example_event, tmp_path, claims_csv: str) -> pd.DataFrame:
+    """`debrief sites` on the example strokes with these claims; the results CSV as text cells."""
     sites = tmp_path / "claims.csv"
-    sites.write_text("name,latitude,longitude,radius_km,start,end\n"
-                     "Inside,45.4770,-93.2450,0.5,2026-07-14 14:00,2026-07-14 15:00\n"
-                     "Next day,45.4770,-93.2450,0.5,2026-07-15 14:00,2026-07-15 15:00\n"
-                     "Partial,45.4770,-93.2450,0.5,2026-07-14 17:00,2026-07-14 19:00\n"
-                     "Far away,46.9,-93.2450,0.5,,\n")
+    sites.write_text(claims_csv)
     out = tmp_path / "r.csv"
     assert main(["sites", str(example_event / "strokes.csv"), "--event", str(example_event), "--sites", str(sites),
                  "--out", str(out)]) == 0
-    r = pd.read_csv(out, keep_default_na=False)
+    return pd.read_csv(out, keep_default_na=False)
+
+
+def test_every_sites_row_carries_coverage(example_event, tmp_path):
+    r = _sites_results(example_event, tmp_path, "name,latitude,longitude,radius_km,start,end\n"
+                       "Inside,45.4770,-93.2450,0.5,2026-07-14 14:00,2026-07-14 15:00\n"
+                       "Next day,45.4770,-93.2450,0.5,2026-07-15 14:00,2026-07-15 15:00\n"
+                       "Partial,45.4770,-93.2450,0.5,2026-07-14 17:00,2026-07-14 19:00\n"
+                       "Far away,46.9,-93.2450,0.5,,\n")
     assert list(r["coverage"]) == ["inside", "outside", "partial", "outside"]
     assert set(r["coverage_source"]) == {"data_extent"}
     assert r.loc[1, "p_any_within"] == "" and r.loc[1, "sentence"].startswith("No conclusion")
@@ -221,13 +226,8 @@ def test_a_site_off_its_own_parcel_is_named(example_event, capsys):
 
 
 def test_a_missing_parcel_file_is_one_unchecked_row(example_event, tmp_path):
-    sites = tmp_path / "claims.csv"
-    sites.write_text("name,latitude,longitude,radius_km,parcel_file\n"
-                     "Good,45.4770,-93.2450,0.5,\n"
-                     "No outline,45.4770,-93.2450,0.5,nope.geojson\n")
-    out = tmp_path / "r.csv"
-    assert main(["sites", str(example_event / "strokes.csv"), "--event", str(example_event), "--sites", str(sites),
-                 "--out", str(out)]) == 0
-    r = pd.read_csv(out, keep_default_na=False)
+    r = _sites_results(example_event, tmp_path, "name,latitude,longitude,radius_km,parcel_file\n"
+                       "Good,45.4770,-93.2450,0.5,\n"
+                       "No outline,45.4770,-93.2450,0.5,nope.geojson\n")
     assert r["name"].tolist() == ["Good", "No outline"] and r["coverage"].tolist() == ["inside", "not_checked"]
     assert "parcel file not found" in r["problem"].iloc[1]

@@ -6,6 +6,7 @@ write. Every number comes from those core functions.
 
 from __future__ import annotations
 
+import argparse
 import json
 import sys
 from pathlib import Path
@@ -150,14 +151,6 @@ def _with_unchecked_rows(summary: pd.DataFrame, claim: pd.DataFrame, problems) -
     return out
 
 
-def _event_window(cfg):
-    """The event's analysis window from event.toml (None where unset: the data's extent)."""
-    tz, fmt = cfg.time_zone, cfg.get("typed_time_format")
-    start = parse_user_time(cfg.get("start"), tz, what="event.toml start", time_format=fmt) if cfg.get("start") else None
-    end = parse_user_time(cfg.get("end"), tz, what="event.toml end", time_format=fmt) if cfg.get("end") else None
-    return start, end
-
-
 def _period_from_args(args, cfg):
     """A claim period from ``--start/--end`` only (None where not given: the window's bound)."""
     tz, fmt = cfg.time_zone, cfg.get("typed_time_format")
@@ -202,7 +195,8 @@ def run_site(args) -> int:
     for o in (args.out, args.geojson):
         _check_out(o, args.strokes, args.parcel)
     # --start/--end are the claim period; the analysis window is the event's (event.toml or the data).
-    an = analysis_from_args(args, cfg, window=_event_window(cfg), include_likely_ic=args.include_likely_ic,
+    event_window = window_from_args(argparse.Namespace(), cfg)  # event.toml's, not the claim period
+    an = analysis_from_args(args, cfg, window=event_window, include_likely_ic=args.include_likely_ic,
                             detection_efficiency=de, de_source=src)
     res = an.check_site(lat, lon, args.radius_km, start=start, end=end, parcel=parcel, name=args.name)
     if args.out:
